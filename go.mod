@@ -1,0 +1,3 @@
+module github.com/tripass/tripass
+
+go 1.26.8
