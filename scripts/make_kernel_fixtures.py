@@ -157,7 +157,12 @@ def npy_fixtures(outdir):
                             np.lib.format.write_array(f, arr, version=version)
                     back = np.load(path)
                     assert np.array_equal(back, c), name
-                    manifest.append({"file": name, "descr": descr, "fortran_order": fortran,
+                    with open(path, "rb") as f:
+                        # What numpy actually wrote: it stores an array that is both C-
+                        # and Fortran-contiguous (size 0 or 1) as C order.
+                        v = np.lib.format.read_magic(f)
+                        _, stored_fortran, _ = np.lib.format._read_array_header(f, v)
+                    manifest.append({"file": name, "descr": descr, "fortran_order": stored_fortran,
                                      "version": list(version), "shape": list(shape),
                                      "values": [float(v) for v in c.ravel(order="C")]})
     # Golden outputs for tripass's writer: what numpy.save writes for float64 and float32
