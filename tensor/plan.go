@@ -78,7 +78,9 @@ func (o Order) String() string {
 //
 // Taps are kernel values in kernel order (not mirrored): the engine mirrors them to
 // convolve. Each tap vector has the kernel's length along its axis and the same centre
-// (see Center).
+// (see Center). Along an axis of one tap the planner folds each pass's value into a
+// longer pass of the same term, leaving the unit tap [1]: an identity that costs
+// nothing (see Macs).
 type Plan struct {
 	Form     Form
 	Order    Order
@@ -123,18 +125,30 @@ func (p *Plan) Terms() int {
 // Macs is the cost of the plan in multiply-adds per output voxel: the non-zero taps for
 // Direct; the sum of the lengths of all 1D passes for CP and Tucker, which is
 // R·(kx+ky+kz) for R CP terms and r1·kx + r1·r2·ky + r1·r2·kz for Tucker with order XYZ.
+// A pass that is the single unit tap [1] is the identity and costs nothing, so a flat
+// k×k×1 rank-one kernel whose weight is folded into its in-plane taps costs 2k (common
+// practice); the engine may skip such passes.
 func (p *Plan) Macs() int {
 	if p.Form == Direct {
 		return p.Kernel.NonZero()
 	}
 	n := 0
 	for _, b := range p.Branches {
-		n += len(b.First)
+		n += passCost(b.First)
 		for _, l := range b.Leaves {
-			n += len(l.Second) + len(l.Z)
+			n += passCost(l.Second) + passCost(l.Z)
 		}
 	}
 	return n
+}
+
+// passCost is the multiply-adds per voxel of one 1D pass: its length, or 0 for the
+// identity [1].
+func passCost(taps []float64) int {
+	if len(taps) == 1 && taps[0] == 1 {
+		return 0
+	}
+	return len(taps)
 }
 
 // Reconstruct returns the kernel that the plan applies: Kernel itself for Direct, the
