@@ -227,7 +227,8 @@ func checkKernel(k *Dense) error {
 }
 
 // choose returns the cheapest option within tol that is not degenerate (Direct always
-// is); ties go to Direct, then to the lower error. With force set it keeps to that
+// is); ties go to the simpler form (Direct, then CP, then Tucker), then to the lower
+// error. With force set it keeps to that
 // form, falling back to its most accurate non-degenerate option.
 func choose(opts []Option, tol float64, force *Form) *Option {
 	var best *Option
@@ -235,8 +236,8 @@ func choose(opts []Option, tol float64, force *Form) *Option {
 		if o.Macs != b.Macs {
 			return o.Macs < b.Macs
 		}
-		if (o.Form == Direct) != (b.Form == Direct) {
-			return o.Form == Direct
+		if o.Form != b.Form {
+			return o.Form < b.Form // Direct, then CP, then Tucker
 		}
 		return o.RelError < b.RelError
 	}
@@ -409,18 +410,13 @@ func passMacs(n int) int {
 
 // tuckerMacs is the cost model of a Tucker plan of ranks r for a kernel of dimensions d:
 // r1·kx + r1·r2·ky + r1·r2·kz with x first, r2·ky + r1·r2·kx + r1·r2·kz with y first,
-// where an axis of one tap costs nothing (and a 1×1×1 kernel costs 1).
+// where an axis of one tap costs nothing. (A 1×1×1 kernel's plan keeps its one value
+// in a z pass that costs 1 unless the value is 1; the model says 0.)
 func tuckerMacs(d [3]int, r [3]int, order Order) int {
-	var m int
 	if order == XYZ {
-		m = r[0]*passMacs(d[0]) + r[0]*r[1]*(passMacs(d[1])+passMacs(d[2]))
-	} else {
-		m = r[1]*passMacs(d[1]) + r[0]*r[1]*(passMacs(d[0])+passMacs(d[2]))
+		return r[0]*passMacs(d[0]) + r[0]*r[1]*(passMacs(d[1])+passMacs(d[2]))
 	}
-	if d == [3]int{1, 1, 1} {
-		m = 1
-	}
-	return m
+	return r[1]*passMacs(d[1]) + r[0]*r[1]*(passMacs(d[0])+passMacs(d[2]))
 }
 
 // rankSearch finds the cheapest truncation of a full HOSVD within an error. The error of
