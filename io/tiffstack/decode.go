@@ -43,10 +43,10 @@ func maxRatio(c uint16) uint64 {
 
 func (d *decoder) load(tf *tiffFile, p *page) (offs, counts []uint64, err error) {
 	if d.offs, err = tf.uints(&p.offsets, d.offs); err != nil {
-		return nil, nil, fmt.Errorf("offsets: %w", err)
+		return nil, nil, within("offsets", err)
 	}
 	if d.counts, err = tf.uints(&p.counts, d.counts); err != nil {
-		return nil, nil, fmt.Errorf("byte counts: %w", err)
+		return nil, nil, within("byte counts", err)
 	}
 	return d.offs, d.counts, nil
 }
@@ -114,7 +114,7 @@ func (d *decoder) decodePage(tf *tiffFile, p *page, dst []byte) error {
 					end, hi, j = end+uint64(m), hi+m, j+1
 				}
 				if err := tf.readAt(dst[lo:hi], offs[i]); err != nil {
-					return fmt.Errorf("strip %d: %w", i, err)
+					return within(fmt.Sprintf("strip %d", i), err)
 				}
 				if swap {
 					swapBytes(dst[lo:hi], bs)
@@ -123,7 +123,7 @@ func (d *decoder) decodePage(tf *tiffFile, p *page, dst []byte) error {
 				continue
 			}
 			if err := d.decodeChunk(tf, p, dst[lo:lo+nb], offs[i], counts[i], p.width); err != nil {
-				return fmt.Errorf("strip %d: %w", i, err)
+				return within(fmt.Sprintf("strip %d", i), err)
 			}
 			i++
 		}
@@ -136,13 +136,13 @@ func (d *decoder) decodePage(tf *tiffFile, p *page, dst []byte) error {
 	for i := 0; i < p.n; i++ {
 		if p.compression == cNone {
 			if err := tf.readAt(tile, offs[i]); err != nil {
-				return fmt.Errorf("tile %d: %w", i, err)
+				return within(fmt.Sprintf("tile %d", i), err)
 			}
 			if swap {
 				swapBytes(tile, bs)
 			}
 		} else if err := d.decodeChunk(tf, p, tile, offs[i], counts[i], p.tileW); err != nil {
-			return fmt.Errorf("tile %d: %w", i, err)
+			return within(fmt.Sprintf("tile %d", i), err)
 		}
 		x0, y0 := (i%across)*p.tileW, (i/across)*p.tileH
 		cw, ch := min(p.tileW, p.width-x0)*bs, min(p.tileH, p.height-y0)

@@ -144,7 +144,7 @@ func openSlice(path string, dec *decoder) (*Reader, error) {
 	if err != nil {
 		return nil, err
 	}
-	r, err := newReaderDec(f, true, dec)
+	r, err := newReader(f, true, dec)
 	if err != nil {
 		f.Close()
 		return nil, fmt.Errorf("%s: %w", path, err)

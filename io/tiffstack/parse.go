@@ -149,7 +149,7 @@ func (t *tiffFile) parseIFD(off uint64, first bool) (*page, error) {
 	// do we.
 	cb := t.buf(countSize)
 	if err := t.readAt(cb, off); err != nil {
-		return nil, fmt.Errorf("IFD at offset %d: %w", off, err)
+		return nil, within(fmt.Sprintf("IFD at offset %d", off), err)
 	}
 	var n uint64
 	if t.big {
@@ -166,7 +166,7 @@ func (t *tiffFile) parseIFD(off uint64, first bool) (*page, error) {
 	}
 	b := t.buf(int(n)*entrySize + nextSize)
 	if err := t.readAt(b, off+uint64(countSize)); err != nil {
-		return nil, fmt.Errorf("IFD at offset %d: %w", off, err)
+		return nil, within(fmt.Sprintf("IFD at offset %d", off), err)
 	}
 	p := &page{compression: cNone, predictor: predNone, resUnit: resUnitInch}
 	var (
@@ -275,7 +275,7 @@ func (t *tiffFile) parseIFD(off uint64, first bool) (*page, error) {
 		}
 		v, err := t.firstUint(f)
 		if err != nil {
-			return nil, fmt.Errorf("tag %d: %w", e.tag, err)
+			return nil, within(fmt.Sprintf("tag %d", e.tag), err)
 		}
 		switch e.tag {
 		case tNewSubfileType:
@@ -401,7 +401,7 @@ func (t *tiffFile) parseIFD(off uint64, first bool) (*page, error) {
 			n := min(descField.count, maxDescription)
 			db := make([]byte, n)
 			if err := t.fieldBytes(descField, db); err != nil {
-				return nil, fmt.Errorf("ImageDescription: %w", err)
+				return nil, within("ImageDescription", err)
 			}
 			p.desc = strings.TrimRight(string(db), "\x00")
 		}
@@ -409,7 +409,7 @@ func (t *tiffFile) parseIFD(off uint64, first bool) (*page, error) {
 			x, err1 := t.rational(xres)
 			y, err2 := t.rational(yres)
 			if err := errors.Join(err1, err2); err != nil {
-				return nil, fmt.Errorf("resolution: %w", err)
+				return nil, within("resolution", err)
 			}
 			p.xres, p.yres, p.hasRes = x, y, true
 		}

@@ -114,7 +114,7 @@ func Open(path string) (*Reader, error) {
 	if err != nil {
 		return nil, err
 	}
-	r, err := newReader(f, false)
+	r, err := newReader(f, false, nil)
 	if err != nil {
 		f.Close()
 		return nil, fmt.Errorf("%s: %w", path, err)
@@ -124,14 +124,9 @@ func Open(path string) (*Reader, error) {
 }
 
 // newReader parses the file behind f. With firstOnly it reads only the first image page
-// (a slice of a folder) and reports an error if the file has more.
-func newReader(f *os.File, firstOnly bool) (*Reader, error) {
-	r, err := newReaderDec(f, firstOnly, nil)
-	return r, err
-}
-
-// newReaderDec is newReader with the scratch buffers of dec (nil: the Reader's own).
-func newReaderDec(f *os.File, firstOnly bool, dec *decoder) (*Reader, error) {
+// (a slice of a folder) and reports an error if the file has more. dec supplies the
+// scratch buffers (nil: the Reader's own).
+func newReader(f *os.File, firstOnly bool, dec *decoder) (*Reader, error) {
 	st, err := f.Stat()
 	if err != nil {
 		return nil, err
@@ -139,7 +134,12 @@ func newReaderDec(f *os.File, firstOnly bool, dec *decoder) (*Reader, error) {
 	if !st.Mode().IsRegular() {
 		return nil, fmt.Errorf("not a regular file")
 	}
-	tf := &tiffFile{ra: f, size: st.Size()}
+	return parse(f, st.Size(), firstOnly, dec)
+}
+
+// parse reads the header and IFD chain of the size bytes behind ra.
+func parse(ra io.ReaderAt, size int64, firstOnly bool, dec *decoder) (*Reader, error) {
+	tf := &tiffFile{ra: ra, size: size}
 	if err := tf.readHeader(); err != nil {
 		return nil, err
 	}
@@ -160,7 +160,7 @@ func newReaderDec(f *os.File, firstOnly bool, dec *decoder) (*Reader, error) {
 		seen[off] = i
 		p, err := tf.parseIFD(off, len(r.pages) == 0)
 		if err != nil {
-			return nil, fmt.Errorf("page %d: %w", len(r.pages), err)
+			return nil, within(fmt.Sprintf("page %d", len(r.pages)), err)
 		}
 		off = p.next
 		if p.reduced {
@@ -188,7 +188,7 @@ func newReaderDec(f *os.File, firstOnly bool, dec *decoder) (*Reader, error) {
 	// Check every strip and tile against the file before any slice is read.
 	for i, p := range r.pages {
 		if err := dec.checkChunks(tf, p); err != nil {
-			return nil, fmt.Errorf("page %d: %w", i, err)
+			return nil, within(fmt.Sprintf("page %d", i), err)
 		}
 	}
 	p0 := r.pages[0]
@@ -216,7 +216,7 @@ func (r *Reader) ReadSlice(dst *volume.Slice) error {
 	}
 	dst.Reset(r.hdr.NX, r.hdr.NY, r.hdr.Type)
 	if err := r.dec.decodePage(r.tf, r.pages[r.z], dst.Data); err != nil {
-		return fmt.Errorf("%s: page %d: %w", r.name, r.z, err)
+		return fmt.Errorf("%s: %w", r.name, within(fmt.Sprintf("page %d", r.z), err))
 	}
 	r.z++
 	return nil
