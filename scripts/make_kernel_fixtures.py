@@ -10,6 +10,8 @@ It writes
   io/npy/testdata/*.npy               arrays saved by numpy in every supported dtype,
                                       memory order and format version
   io/npy/testdata/manifest.json       what each .npy file holds (C-order values)
+  cmd/tripass/testdata/kernels/*.npy  SciPy impulse responses saved as kernel files, in
+                                      NumPy's (kz, ky, kx) layout, for the CLI's loader
 
 The impulse response of a linear filter with mode='constant' (zero outside) on a
 volume holding a single 1 at the kernel's centre is the convolution kernel itself,
@@ -176,6 +178,23 @@ def npy_fixtures(outdir):
     return manifest
 
 
+def cli_fixtures(outdir):
+    """Kernel files as a NumPy user would save them: arrays indexed (z, y, x)."""
+    os.makedirs(outdir, exist_ok=True)
+    # Gaussian x-derivative, sigma (x, y, z) = (1.0, 1.5, 0.7): SciPy's axis 2 is x.
+    sxyz, oxyz = (1.0, 1.5, 0.7), (1, 0, 0)
+    shape = tuple(2 * radius(s) + 1 for s in reversed(sxyz))
+    g = ndimage.gaussian_filter(impulse(shape), sigma=tuple(reversed(sxyz)),
+                                order=tuple(reversed(oxyz)), mode="constant")
+    np.save(os.path.join(outdir, "gauss_dx_C.npy"), g)
+    np.save(os.path.join(outdir, "gauss_dx_F_f4.npy"), np.asfortranarray(g.astype(">f4")))
+    # A flat 2D kernel (ky, kx): SciPy's 2D sobel along x (axis 1) of a 3x3 impulse.
+    s2 = ndimage.sobel(impulse((3, 3)), axis=1, mode="constant")
+    np.save(os.path.join(outdir, "sobel2d_x.npy"), s2)
+    # A 1D kernel along x.
+    np.save(os.path.join(outdir, "row5.npy"), np.array([1.0, 4.0, 6.0, 4.0, 1.0]) / 16)
+
+
 def main():
     if len(sys.argv) > 1:
         sys.exit("usage: make_kernel_fixtures.py (no arguments; run from anywhere)")
@@ -184,6 +203,7 @@ def main():
     with open(os.path.join(kdir, "scipy_kernels.json"), "w") as f:
         json.dump(kernel_cases(), f, indent=None, separators=(",", ":"))
         f.write("\n")
+    cli_fixtures(os.path.join(ROOT, "cmd", "tripass", "testdata", "kernels"))
     ndir = os.path.join(ROOT, "io", "npy", "testdata")
     manifest = npy_fixtures(ndir)
     with open(os.path.join(ndir, "manifest.json"), "w") as f:

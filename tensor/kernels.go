@@ -331,6 +331,22 @@ func Rotation(angles [3]float64) [3][3]float64 {
 	return rotMul(rz, rotMul(ry, rx))
 }
 
+// OrientedGaussianSize returns the dimensions (kx, ky, kz) of
+// OrientedGaussian(sigma, angles, truncate) without building it, so that a caller can
+// refuse a kernel too large to hold: 2·int(truncate·√Σᵢᵢ + 0.5) + 1 along axis i.
+func OrientedGaussianSize(sigma, angles [3]float64, truncate float64) [3]int {
+	R := Rotation(angles)
+	var n [3]int
+	for i := range 3 {
+		v := 0.0 // Σᵢᵢ = Σ_k R[i][k]²·σ_k²
+		for k := range 3 {
+			v += R[i][k] * R[i][k] * sigma[k] * sigma[k]
+		}
+		n[i] = 2*int(truncate*math.Sqrt(v)+0.5) + 1
+	}
+	return n
+}
+
 func rotMul(a, b [3][3]float64) [3][3]float64 {
 	var c [3][3]float64
 	for i := range 3 {
@@ -362,15 +378,9 @@ func OrientedGaussian(sigma [3]float64, angles [3]float64, truncate float64) *De
 		panic(fmt.Sprintf("tensor: Gaussian truncate %v is not a finite non-negative number", truncate))
 	}
 	R := Rotation(angles)
-	var rad [3]int
-	for i := range 3 {
-		v := 0.0 // Σᵢᵢ = Σ_k R[i][k]²·σ_k²
-		for k := range 3 {
-			v += R[i][k] * R[i][k] * sigma[k] * sigma[k]
-		}
-		rad[i] = int(truncate*math.Sqrt(v) + 0.5)
-	}
-	t := New(2*rad[0]+1, 2*rad[1]+1, 2*rad[2]+1)
+	size := OrientedGaussianSize(sigma, angles, truncate)
+	rad := [3]int{size[0] / 2, size[1] / 2, size[2] / 2}
+	t := New(size[0], size[1], size[2])
 	sum := 0.0
 	n := 0
 	for k := -rad[2]; k <= rad[2]; k++ {
