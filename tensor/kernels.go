@@ -331,22 +331,6 @@ func Rotation(angles [3]float64) [3][3]float64 {
 	return rotMul(rz, rotMul(ry, rx))
 }
 
-// OrientedGaussianSize returns the dimensions (kx, ky, kz) of
-// OrientedGaussian(sigma, angles, truncate) without building it, so that a caller can
-// refuse a kernel too large to hold: 2·int(truncate·√Σᵢᵢ + 0.5) + 1 along axis i.
-func OrientedGaussianSize(sigma, angles [3]float64, truncate float64) [3]int {
-	R := Rotation(angles)
-	var n [3]int
-	for i := range 3 {
-		v := 0.0 // Σᵢᵢ = Σ_k R[i][k]²·σ_k²
-		for k := range 3 {
-			v += R[i][k] * R[i][k] * sigma[k] * sigma[k]
-		}
-		n[i] = 2*int(truncate*math.Sqrt(v)+0.5) + 1
-	}
-	return n
-}
-
 func rotMul(a, b [3][3]float64) [3][3]float64 {
 	var c [3][3]float64
 	for i := range 3 {
@@ -362,23 +346,68 @@ func rotMul(a, b [3][3]float64) [3][3]float64 {
 // OrientedGaussian returns a sampled anisotropic Gaussian whose principal axes are the
 // x, y and z axes turned by Rotation(angles), with standard deviations sigma (in
 // voxels) along the turned axes, normalised to sum 1: a model of a tilted
-// point-spread function, as in a light-sheet or oblique-plane microscope. Its
-// covariance is Σ = R·diag(σ²)·Rᵀ and a tap at offset p holds exp(−½·pᵀΣ⁻¹p) before
-// normalisation. The half-width along each axis is int(truncate·√Σᵢᵢ + 0.5): the
-// extent of the ellipsoid at truncate standard deviations, rounded as GaussianRadius
-// rounds it, so that with zero angles the kernel equals the outer product of three
-// Gaussian1D kernels. OrientedGaussian panics if a sigma is not positive and finite.
+// point-spread function, as in a light-sheet or oblique-plane microscope. It is
+// CovarianceGaussian with covariance Σ = R·diag(σ²)·Rᵀ, so with zero angles it equals
+// the outer product of three Gaussian1D kernels. OrientedGaussian panics if a sigma is
+// not positive and finite, or if truncate is negative or not finite.
 func OrientedGaussian(sigma [3]float64, angles [3]float64, truncate float64) *Dense {
 	for _, s := range sigma {
 		if !(s > 0) || math.IsInf(s, 0) {
 			panic(fmt.Sprintf("tensor: oriented Gaussian sigma %v is not positive and finite", s))
 		}
 	}
+	return CovarianceGaussian(OrientedCovariance(sigma, angles), truncate)
+}
+
+// OrientedCovariance returns R·diag(σ²)·Rᵀ with R = Rotation(angles): the covariance of
+// a Gaussian with standard deviations sigma along the axes turned by R.
+func OrientedCovariance(sigma, angles [3]float64) [3][3]float64 {
+	R := Rotation(angles)
+	var c [3][3]float64
+	for i := range 3 {
+		for j := range 3 {
+			for a := range 3 {
+				c[i][j] += R[i][a] * sigma[a] * sigma[a] * R[j][a]
+			}
+		}
+	}
+	return c
+}
+
+// CovarianceSize returns the dimensions (kx, ky, kz) of CovarianceGaussian(cov,
+// truncate) without building it, so that a caller can refuse a kernel too large to
+// hold: 2·int(truncate·√Σᵢᵢ + 0.5) + 1 along axis i, the extent of the ellipsoid at
+// truncate standard deviations, rounded as GaussianRadius rounds it.
+func CovarianceSize(cov [3][3]float64, truncate float64) [3]int {
+	var n [3]int
+	for i := range 3 {
+		n[i] = 2*int(truncate*math.Sqrt(cov[i][i])+0.5) + 1
+	}
+	return n
+}
+
+// OrientedGaussianSize returns the dimensions of OrientedGaussian(sigma, angles,
+// truncate) without building it.
+func OrientedGaussianSize(sigma, angles [3]float64, truncate float64) [3]int {
+	return CovarianceSize(OrientedCovariance(sigma, angles), truncate)
+}
+
+// CovarianceGaussian returns the sampled Gaussian with covariance cov (in voxels²),
+// normalised to sum 1: a tap at offset p holds exp(−½·pᵀΣ⁻¹p) before normalisation, and
+// the kernel has the dimensions of CovarianceSize. This is the general form behind
+// OrientedGaussian; it also serves a Gaussian given in physical units on anisotropic
+// voxels, where Σ_voxels = S⁻¹·Σ_physical·S⁻¹ with S the diagonal of voxel sizes.
+// CovarianceGaussian panics if cov is not symmetric positive definite or truncate is
+// negative or not finite.
+func CovarianceGaussian(cov [3][3]float64, truncate float64) *Dense {
 	if truncate < 0 || math.IsNaN(truncate) || math.IsInf(truncate, 0) {
 		panic(fmt.Sprintf("tensor: Gaussian truncate %v is not a finite non-negative number", truncate))
 	}
-	R := Rotation(angles)
-	size := OrientedGaussianSize(sigma, angles, truncate)
+	inv, ok := invertSPD3(cov)
+	if !ok {
+		panic(fmt.Sprintf("tensor: covariance %v is not symmetric positive definite", cov))
+	}
+	size := CovarianceSize(cov, truncate)
 	rad := [3]int{size[0] / 2, size[1] / 2, size[2] / 2}
 	t := New(size[0], size[1], size[2])
 	sum := 0.0
@@ -388,11 +417,10 @@ func OrientedGaussian(sigma [3]float64, angles [3]float64, truncate float64) *De
 			for i := -rad[0]; i <= rad[0]; i++ {
 				p := [3]float64{float64(i), float64(j), float64(k)}
 				q := 0.0
-				// pᵀΣ⁻¹p = |diag(1/σ)·Rᵀp|²: the offset in the Gaussian's own axes.
 				for a := range 3 {
-					u := R[0][a]*p[0] + R[1][a]*p[1] + R[2][a]*p[2]
-					u /= sigma[a]
-					q += u * u
+					for b := range 3 {
+						q += p[a] * inv[a][b] * p[b]
+					}
 				}
 				v := math.Exp(-0.5 * q)
 				t.Data[n] = v
@@ -405,4 +433,46 @@ func OrientedGaussian(sigma [3]float64, angles [3]float64, truncate float64) *De
 		t.Data[n] /= sum
 	}
 	return t
+}
+
+// invertSPD3 inverts a symmetric positive definite 3×3 matrix by its adjugate, and
+// reports false if m is not symmetric (to a relative 1e-12), not positive definite
+// (Sylvester's criterion: all leading principal minors positive) or not finite.
+func invertSPD3(m [3][3]float64) ([3][3]float64, bool) {
+	var inv [3][3]float64
+	scale := 0.0
+	for i := range 3 {
+		for j := range 3 {
+			if math.IsNaN(m[i][j]) || math.IsInf(m[i][j], 0) {
+				return inv, false
+			}
+			scale = max(scale, math.Abs(m[i][j]))
+		}
+	}
+	for i := range 3 {
+		for j := range i {
+			if math.Abs(m[i][j]-m[j][i]) > 1e-12*scale {
+				return inv, false
+			}
+		}
+	}
+	m1 := m[0][0]
+	m2 := m[0][0]*m[1][1] - m[0][1]*m[1][0]
+	c00 := m[1][1]*m[2][2] - m[1][2]*m[2][1]
+	c01 := m[1][2]*m[2][0] - m[1][0]*m[2][2]
+	c02 := m[1][0]*m[2][1] - m[1][1]*m[2][0]
+	det := m[0][0]*c00 + m[0][1]*c01 + m[0][2]*c02
+	if !(m1 > 0 && m2 > 0 && det > 0) {
+		return inv, false
+	}
+	inv[0][0] = c00 / det
+	inv[1][0] = c01 / det
+	inv[2][0] = c02 / det
+	inv[0][1] = (m[0][2]*m[2][1] - m[0][1]*m[2][2]) / det
+	inv[1][1] = (m[0][0]*m[2][2] - m[0][2]*m[2][0]) / det
+	inv[2][1] = (m[0][1]*m[2][0] - m[0][0]*m[2][1]) / det
+	inv[0][2] = (m[0][1]*m[1][2] - m[0][2]*m[1][1]) / det
+	inv[1][2] = (m[0][2]*m[1][0] - m[0][0]*m[1][2]) / det
+	inv[2][2] = (m[0][0]*m[1][1] - m[0][1]*m[1][0]) / det
+	return inv, true
 }

@@ -4,6 +4,7 @@ import (
 	"encoding/json"
 	"fmt"
 	"math"
+	"math/rand/v2"
 	"os"
 	"testing"
 )
@@ -396,6 +397,9 @@ func TestKernelPanics(t *testing.T) {
 		"oriented zero sigma":     func() { OrientedGaussian([3]float64{1, 0, 1}, [3]float64{}, 4) },
 		"oriented bad truncate":   func() { OrientedGaussian([3]float64{1, 1, 1}, [3]float64{}, math.Inf(1)) },
 		"negative truncate in 1D": func() { Gaussian1D(1, 0, -2) },
+		"indefinite covariance":   func() { CovarianceGaussian([3][3]float64{{1, 2, 0}, {2, 1, 0}, {0, 0, 1}}, 4) },
+		"asymmetric covariance":   func() { CovarianceGaussian([3][3]float64{{1, 0.5, 0}, {0, 1, 0}, {0, 0, 1}}, 4) },
+		"NaN covariance":          func() { CovarianceGaussian([3][3]float64{{1, 0, 0}, {0, math.NaN(), 0}, {0, 0, 1}}, 4) },
 	} {
 		t.Run(name, func(t *testing.T) {
 			defer func() {
@@ -405,6 +409,44 @@ func TestKernelPanics(t *testing.T) {
 			}()
 			f()
 		})
+	}
+}
+
+// TestInvertSPD3: the adjugate inverse of random symmetric positive definite matrices
+// A = BᵀB + I satisfies A·A⁻¹ = I (a property test, common practice).
+func TestInvertSPD3(t *testing.T) {
+	rng := rand.New(rand.NewPCG(3, 4))
+	for range 200 {
+		var b, a [3][3]float64
+		for i := range 3 {
+			for j := range 3 {
+				b[i][j] = rng.NormFloat64() * 3
+			}
+		}
+		for i := range 3 {
+			for j := range 3 {
+				for k := range 3 {
+					a[i][j] += b[k][i] * b[k][j]
+				}
+			}
+			a[i][i]++
+		}
+		inv, ok := invertSPD3(a)
+		if !ok {
+			t.Fatalf("%v reported not positive definite", a)
+		}
+		p := rotMul(a, inv)
+		for i := range 3 {
+			for j := range 3 {
+				want := 0.0
+				if i == j {
+					want = 1
+				}
+				if math.Abs(p[i][j]-want) > 1e-9 {
+					t.Fatalf("A·A⁻¹ = %v", p)
+				}
+			}
+		}
 	}
 }
 

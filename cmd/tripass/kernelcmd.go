@@ -38,11 +38,11 @@ var (
 	}
 	kmTruncate = &cli.Float64Flag{
 		Name: "truncate", Category: "Kernel", Value: tensor.DefaultTruncate,
-		Usage: "half-width of Gaussians in standard deviations: radius = int(truncate·sigma + 0.5) voxels",
+		Usage: "half-width `T` of Gaussians in standard deviations: radius = int(T·sigma + 0.5) voxels",
 	}
 	kmAxis = &cli.StringFlag{
 		Name: "axis", Category: "Kernel",
-		Usage: "gaussian-d1, gaussian-d2, sobel: the axis of the derivative, `x`, y or z",
+		Usage: "gaussian-d1, gaussian-d2, sobel: the `AXIS` of the derivative, x, y or z",
 	}
 	kmSize = &cli.StringFlag{
 		Name: "size", Category: "Kernel",
@@ -50,7 +50,7 @@ var (
 	}
 	kmRadius = &cli.Float64Flag{
 		Name: "radius", Category: "Kernel",
-		Usage: "ball: radius in voxels; taps within the radius of the centre are kept",
+		Usage: "ball: radius `R` in voxels; taps within R of the centre are kept",
 	}
 	kmAngles = &cli.StringFlag{
 		Name: "angles", Category: "Kernel", Value: "0,0,0",
@@ -92,7 +92,7 @@ var kernelKinds = []kernelKind{
 	{"log", "Laplacian of Gaussian", []string{"sigma", "truncate", "spacing"}, makeLoG},
 	{"dog", "difference of Gaussians, G(--sigma) − G(--sigma2)", []string{"sigma", "sigma2", "truncate", "spacing"}, makeDoG},
 	{"ball", "mean over a digital ball of --radius voxels", []string{"radius"}, makeBall},
-	{"oriented-gaussian", "anisotropic Gaussian turned by --angles: a model of a tilted point-spread function", []string{"sigma", "angles", "truncate", "spacing"}, makeOriented},
+	{"oriented-gaussian", "anisotropic Gaussian with --sigma along its own axes, turned by --angles: a model of a tilted point-spread function", []string{"sigma", "angles", "truncate", "spacing"}, makeOriented},
 }
 
 func kernelNames() string {
@@ -182,46 +182,58 @@ func sumTaps(k *tensor.Dense) float64 {
 // widths reads a --sigma style flag into voxels along x, y, z, converting physical
 // units with --spacing.
 func widths(c *cli.Context, flag string) ([3]float64, error) {
+	v, sp, err := lengths(c, flag)
+	for i := range v {
+		v[i] /= sp[i]
+	}
+	return v, err
+}
+
+// lengths reads a --sigma style flag into lengths along x, y, z and the voxel size to
+// divide them by to get voxels: the --spacing values, in the flag's unit, when the
+// flag has a unit, and (1, 1, 1) when it is in voxels.
+func lengths(c *cli.Context, flag string) (v, spacing [3]float64, err error) {
+	spacing = [3]float64{1, 1, 1}
 	s := c.String(flag)
 	if s == "" {
-		return [3]float64{}, usageErrorf("the %s kernel needs --%s", c.Args().First(), flag)
+		return v, spacing, usageErrorf("the %s kernel needs --%s", c.Args().First(), flag)
 	}
 	v, unit, err := volume.ParseTriple(s)
 	if err != nil {
-		return v, usageErrorf("--%s: %v", flag, err)
+		return v, spacing, usageErrorf("--%s: %v", flag, err)
 	}
 	for _, x := range v {
 		if x < 0 {
-			return v, usageErrorf("--%s %s: widths cannot be negative", flag, s)
+			return v, spacing, usageErrorf("--%s %s: widths cannot be negative", flag, s)
 		}
 	}
 	if unit == "" {
 		if c.IsSet(kmSpacing.Name) {
-			return v, usageErrorf("--%s %s has no unit, but --spacing is given; add the unit (e.g. %sum)", flag, s, s)
+			return v, spacing, usageErrorf("--%s %s has no unit, but --spacing is given; add the unit (e.g. %sum)", flag, s, s)
 		}
-		return v, nil
+		return v, spacing, nil
 	}
 	if !c.IsSet(kmSpacing.Name) {
-		return v, usageErrorf("--%s %s is in %s; give the voxel size with --spacing X,Y,Z%s", flag, s, unit, unit)
+		return v, spacing, usageErrorf("--%s %s is in %s; give the voxel size with --spacing X,Y,Z%s", flag, s, unit, unit)
 	}
 	sp, spUnit, err := volume.ParseTriple(c.String(kmSpacing.Name))
 	if err != nil {
-		return v, usageErrorf("--spacing: %v", err)
+		return v, spacing, usageErrorf("--spacing: %v", err)
 	}
 	if spUnit == "" {
-		return v, usageErrorf("--spacing %s needs a unit (nm, um or mm)", c.String(kmSpacing.Name))
+		return v, spacing, usageErrorf("--spacing %s needs a unit (nm, um or mm)", c.String(kmSpacing.Name))
 	}
 	for i := range v {
 		if !(sp[i] > 0) {
-			return v, usageErrorf("--spacing %s: voxel sizes must be positive", c.String(kmSpacing.Name))
+			return v, spacing, usageErrorf("--spacing %s: voxel sizes must be positive", c.String(kmSpacing.Name))
 		}
-		phys, err := volume.ConvertLength(v[i], unit, spUnit)
+		// Express the spacing in the flag's unit.
+		spacing[i], err = volume.ConvertLength(sp[i], spUnit, unit)
 		if err != nil {
-			return v, usageErrorf("--%s: %v", flag, err)
+			return v, spacing, usageErrorf("--spacing: %v", err)
 		}
-		v[i] = phys / sp[i]
 	}
-	return v, nil
+	return v, spacing, nil
 }
 
 func truncate(c *cli.Context) (float64, error) {
@@ -406,14 +418,14 @@ func makeBall(c *cli.Context) (*tensor.Dense, string, error) {
 	}
 	r := c.Float64(kmRadius.Name)
 	if !(r >= 0) || 2*math.Floor(r)+1 > kerneltext.MaxAxis || math.Pow(2*math.Floor(r)+1, 3) > kerneltext.MaxTaps {
-		return nil, "", usageErrorf("--radius %g: want a radius from 0 to %d voxels", r, 126)
+		return nil, "", usageErrorf("--radius %g: want a radius from 0 to below 128 voxels (at most 255³ taps)", r)
 	}
 	b := tensor.Ball(r)
 	return b, fmt.Sprintf("ball of radius %g voxels (%d taps)", r, b.NonZero()), nil
 }
 
 func makeOriented(c *cli.Context) (*tensor.Dense, string, error) {
-	sigma, err := widths(c, kmSigma.Name)
+	sigma, sp, err := lengths(c, kmSigma.Name)
 	if err != nil {
 		return nil, "", err
 	}
@@ -434,16 +446,30 @@ func makeOriented(c *cli.Context) (*tensor.Dense, string, error) {
 	for i, d := range deg {
 		rad[i] = d * math.Pi / 180
 	}
-	if err := checkGaussianSize(sigma, t); err != nil { // the unturned widths
-		return nil, "", err
+	// The Gaussian is turned in physical space, then expressed in voxels: on
+	// anisotropic voxels a turned Gaussian is not a turned Gaussian of scaled sigmas.
+	cov := tensor.OrientedCovariance(sigma, rad)
+	for i := range 3 {
+		for j := range 3 {
+			cov[i][j] /= sp[i] * sp[j]
+		}
 	}
-	size := tensor.OrientedGaussianSize(sigma, rad, t)
+	for i := range 3 {
+		if t*math.Sqrt(cov[i][i]) > kerneltext.MaxAxis {
+			return nil, "", usageErrorf("the oriented Gaussian would have more than %d taps along %s, the kernel limit", kerneltext.MaxAxis, "xyz"[i:i+1])
+		}
+	}
+	size := tensor.CovarianceSize(cov, t)
 	if size[0] > kerneltext.MaxAxis || size[1] > kerneltext.MaxAxis || size[2] > kerneltext.MaxAxis ||
 		size[0]*size[1]*size[2] > kerneltext.MaxTaps {
 		return nil, "", usageErrorf("the oriented Gaussian would be %d×%d×%d taps, beyond the kernel limits", size[0], size[1], size[2])
 	}
-	return tensor.OrientedGaussian(sigma, rad, t),
-		fmt.Sprintf("oriented Gaussian, sigma %s voxels turned %s degrees about x, y, z", fmtTriple(sigma), fmtTriple(deg)), nil
+	units := "voxels"
+	if c.IsSet(kmSpacing.Name) {
+		_, units, _ = volume.ParseTriple(c.String(kmSigma.Name))
+	}
+	return tensor.CovarianceGaussian(cov, t),
+		fmt.Sprintf("oriented Gaussian, sigma %s %s turned %s degrees about x, y, z", fmtTriple(sigma), units, fmtTriple(deg)), nil
 }
 
 func fmtTriple(v [3]float64) string {
@@ -456,11 +482,11 @@ func fmtTriple(v [3]float64) string {
 var (
 	kiTolerance = &cli.Float64Flag{
 		Name: "tolerance", Category: "Analysis", Value: tensor.DefaultTolerance,
-		Usage: "largest relative Frobenius error ‖K − plan‖/‖K‖ a separable form may have",
+		Usage: "largest relative Frobenius error `E` = ‖K − plan‖/‖K‖ a separable form may have",
 	}
 	kiMaxTerms = &cli.IntFlag{
 		Name: "max-terms", Category: "Analysis", Value: tensor.DefaultMaxCPTerms,
-		Usage: "largest number of separable (CP) terms to try",
+		Usage: "largest number `N` of separable (CP) terms to try (0: none)",
 	}
 	kiJSON = &cli.BoolFlag{
 		Name: "json", Category: "Output",

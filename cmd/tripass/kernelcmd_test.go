@@ -93,6 +93,60 @@ func TestKernelMakePhysicalUnits(t *testing.T) {
 	}
 }
 
+// TestOrientedGaussianPhysicalUnits: on cubic voxels physical sigmas are sigmas in
+// voxels; on anisotropic voxels with zero angles the Gaussian is the axis-aligned one
+// with each sigma divided by its voxel size; and turning it keeps the physical widths
+// (the kernel's second moments, in physical units, are R·diag(σ²)·Rᵀ).
+func TestOrientedGaussianPhysicalUnits(t *testing.T) {
+	dir := t.TempDir()
+	mk := func(name string, args ...string) *tensor.Dense {
+		p := filepath.Join(dir, name)
+		if code, _, e := runCLI(t, append(append([]string{"kernel", "make", "oriented-gaussian"}, args...), "-o", p)...); code != 0 {
+			t.Fatal(e)
+		}
+		k, err := loadKernel(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		return k
+	}
+	a := mk("a.npy", "--sigma", "0.5,0.5,1.5um", "--spacing", "0.5um", "--angles", "10,20,30")
+	b := mk("b.npy", "--sigma", "1,1,3", "--angles", "10,20,30")
+	if d := denseDiff(a, b); d > 1e-15 {
+		t.Errorf("cubic voxels: differs from the voxel version by %g", d)
+	}
+	c := mk("c.npy", "--sigma", "0.4,0.6,2um", "--spacing", "0.2,0.2,1um")
+	want := tensor.GaussianPlan([3]float64{2, 3, 2}, [3]int{}).Kernel
+	if d := denseDiff(c, want); d > 1e-15 {
+		t.Errorf("anisotropic voxels, no turn: differs from Gaussian 2,3,2 voxels by %g", d)
+	}
+	// Turned 30° about y on 0.2×0.2×0.4 µm voxels, wide truncation so the sampled moments
+	// match the continuous ones.
+	sp := [3]float64{0.2, 0.2, 0.4}
+	d := mk("d.npy", "--sigma", "0.3,0.3,0.9um", "--spacing", "0.2,0.2,0.4um", "--angles", "0,30,0", "--truncate", "7")
+	cov := tensor.OrientedCovariance([3]float64{0.3, 0.3, 0.9}, [3]float64{0, math.Pi / 6, 0})
+	var got [3][3]float64
+	for z := range d.K {
+		for y := range d.J {
+			for x := range d.I {
+				p := [3]float64{float64(x-d.I/2) * sp[0], float64(y-d.J/2) * sp[1], float64(z-d.K/2) * sp[2]}
+				for i := range 3 {
+					for j := range 3 {
+						got[i][j] += p[i] * p[j] * d.At(x, y, z)
+					}
+				}
+			}
+		}
+	}
+	for i := range 3 {
+		for j := range 3 {
+			if math.Abs(got[i][j]-cov[i][j]) > 1e-6 {
+				t.Errorf("physical moment (%d,%d) = %.8f, want %.8f", i, j, got[i][j], cov[i][j])
+			}
+		}
+	}
+}
+
 // TestLoadKernelNumPyLayout loads kernel files saved by numpy.save with the impulse
 // responses of scipy.ndimage filters, which checks the axis convention: a 3D array is
 // (kz, ky, kx), a 2D array (ky, kx), a 1D array along x.
