@@ -153,6 +153,17 @@ func TestPercentileMatchesNumPy(t *testing.T) {
 	}
 }
 
+func TestShortNumbers(t *testing.T) {
+	for _, tt := range []struct {
+		v    float64
+		want string
+	}{{37290.4, "37290"}, {5.0749, "5.075"}, {0.01234, "0.01234"}, {-2.5, "-2.5"}, {0, "0"}, {1e7, "1e+07"}, {2e-5, "2e-05"}, {100, "100"}} {
+		if got := short(tt.v); got != tt.want {
+			t.Errorf("short(%g) = %q, want %q", tt.v, got, tt.want)
+		}
+	}
+}
+
 func TestNiceLengthAndLabel(t *testing.T) {
 	tests := []struct {
 		target float64

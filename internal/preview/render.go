@@ -32,6 +32,8 @@ type Options struct {
 	Percentiles [2]float64
 	// Titles are printed above the columns, one per stack (e.g. the file names).
 	Titles []string
+	// Notes follow each column's grey window in the line under it ("(as before.tif)").
+	Notes []string
 }
 
 // Limits of the automatic width and of the whole image.
@@ -147,7 +149,7 @@ func Render(stacks []*Sections, opt Options) (*image.Gray, *Layout, error) {
 	colW := width
 	for i := range stacks {
 		// Room for the longest line of text under or above the column.
-		colW = max(colW, textWidth(face, windowText(windows[i], pl, ph, i < len(opt.Windows))))
+		colW = max(colW, textWidth(face, windowText(windows[i], pl, ph, i < len(opt.Windows), note(opt.Notes, i))))
 	}
 	total := margin + len(stacks)*(colW+margin)
 	if int64(total)*int64(height) > MaxPixels {
@@ -168,10 +170,11 @@ func Render(stacks []*Sections, opt Options) (*image.Gray, *Layout, error) {
 			drawText(img, face, x0, b.y-4, fmt.Sprintf("%v at %c = %d", p.Section, "xyz"[normal], s.At[normal]))
 			r := image.Rect(x0, b.y, x0+b.w, b.y+b.h)
 			renderPlane(img, r, p, windows[i])
+			drawCuts(img, r, p, s)
 			rects = append(rects, r)
 		}
 		lay.Panels = append(lay.Panels, rects)
-		drawText(img, face, x0, footerY+12, windowText(windows[i], pl, ph, i < len(opt.Windows)))
+		drawText(img, face, x0, footerY+12, windowText(windows[i], pl, ph, i < len(opt.Windows), note(opt.Notes, i)))
 	}
 	if h0.Unit != "" {
 		L := niceLength(colPhys / 4)
@@ -184,16 +187,61 @@ func Render(stacks []*Sections, opt Options) (*image.Gray, *Layout, error) {
 	return img, lay, nil
 }
 
+func note(notes []string, i int) string {
+	if i < len(notes) {
+		return notes[i]
+	}
+	return ""
+}
+
 // windowText describes a contrast window under a column.
-func windowText(w Window, lo, hi float64, given bool) string {
+func windowText(w Window, lo, hi float64, given bool, note string) string {
 	s := fmt.Sprintf("grey %s to %s", short(w.Lo), short(w.Hi))
 	if !given {
-		s += fmt.Sprintf(" (%s–%s %%ile)", short(lo), short(hi))
+		s += fmt.Sprintf(" (%s–%s percentile)", short(lo), short(hi))
+	}
+	if note != "" {
+		s += " " + note
 	}
 	return s
 }
 
-func short(v float64) string { return strings.TrimSuffix(fmt.Sprintf("%.4g", v), ".") }
+// short formats v with about four significant digits, in plain notation between
+// 0.001 and a million ("37290", "5.075", "0.0123") and in e-notation beyond.
+func short(v float64) string {
+	a := math.Abs(v)
+	if a != 0 && (a < 1e-3 || a >= 1e6) {
+		return fmt.Sprintf("%.3g", v)
+	}
+	dec := 0
+	if a > 0 {
+		dec = max(0, 3-int(math.Floor(math.Log10(a))))
+	}
+	s := fmt.Sprintf("%.*f", dec, v)
+	if strings.Contains(s, ".") {
+		s = strings.TrimRight(strings.TrimRight(s, "0"), ".")
+	}
+	if s == "-0" {
+		s = "0"
+	}
+	return s
+}
+
+// tick is the length in pixels of the marks beside a panel that show where the other
+// two sections cut it.
+const tick = 5
+
+// drawCuts marks, outside panel r of plane p, the column and the row where the other
+// sections of s pass: below the panel for the column, left of it for the row.
+func drawCuts(img *image.Gray, r image.Rectangle, p *Plane, s *Sections) {
+	a, d, _ := p.Section.Axes()
+	c := s.At[a]
+	x := r.Min.X + int((float64(c)+0.5)*float64(r.Dx())/float64(p.W))
+	y := r.Min.Y + int((float64(s.At[d])+0.5)*float64(r.Dy())/float64(p.H))
+	u := image.NewUniform(ink)
+	draw.Draw(img, image.Rect(x, r.Max.Y+1, x+1, r.Max.Y+1+tick), u, image.Point{}, draw.Src)
+	draw.Draw(img, image.Rect(r.Min.X-1-tick, y, r.Min.X-1, y+1), u, image.Point{}, draw.Src)
+}
 
 // renderPlane resamples p into r of img through window w.
 func renderPlane(img *image.Gray, r image.Rectangle, p *Plane, w Window) {
