@@ -533,9 +533,10 @@ Examples:
    tripass kernel inspect psf.npy
    tripass kernel inspect psf.npy --tolerance 1e-3 --json
    tripass kernel inspect g.txt --factors g-taps.json
+   tripass kernel inspect psf.npy --tolerance 1e-3 --plot psf-plans.png
 
 ` + kernelFileHelp,
-	Flags:  []cli.Flag{kiTolerance, kiMaxTerms, kiJSON, kiFactors, kmOverwrite},
+	Flags:  []cli.Flag{kiTolerance, kiMaxTerms, kiJSON, kiFactors, kmOverwrite, kiPlot},
 	Action: kernelInspectAction,
 }
 
@@ -595,7 +596,7 @@ func toOptionJSON(o *tensor.Option) optionJSON {
 
 // speedup is the predicted speed-up of m multiply-adds per voxel over direct; a plan
 // that costs nothing (the identity) counts as one.
-func speedup(direct, m int) float64 { return float64(direct) / float64(max(m, 1)) }
+func speedup(direct, m int) float64 { return float64(max(direct, 1)) / float64(max(m, 1)) }
 
 func kernelInspectAction(c *cli.Context) error {
 	if c.NArg() != 1 {
@@ -625,6 +626,9 @@ func kernelInspectAction(c *cli.Context) error {
 		if err := writeFactors(f, an, c.Bool(kmOverwrite.Name)); err != nil {
 			return err
 		}
+	}
+	if err := plotKernel(c, path, an); err != nil { // --plot, in previewcmd.go
+		return err
 	}
 	if c.Bool(kiJSON.Name) {
 		return printInspectJSON(c.App.Writer, path, k, an)
@@ -686,6 +690,9 @@ func printInspect(w io.Writer, path string, k *tensor.Dense, an *tensor.Analysis
 	r, e := an.MultilinearRank, an.ExactRank
 	fmt.Fprintf(w, "multilinear rank  (%d,%d,%d) at tolerance %.3g; exact (%d,%d,%d)\n",
 		r[0], r[1], r[2], an.Tolerance, e[0], e[1], e[2])
+	if an.Norm == 0 {
+		fmt.Fprintf(w, "all taps are zero: this kernel filters any volume to 0\n")
+	}
 	if an.Separable {
 		fmt.Fprintf(w, "separable  yes: one outer product of three 1D kernels\n")
 	} else {

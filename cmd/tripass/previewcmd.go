@@ -13,6 +13,7 @@ import (
 
 	"github.com/tripass/tripass/internal/atomicfile"
 	"github.com/tripass/tripass/internal/preview"
+	"github.com/tripass/tripass/tensor"
 	"github.com/tripass/tripass/volume"
 )
 
@@ -269,4 +270,35 @@ func displayUnit(u string) string {
 		return "µm"
 	}
 	return u
+}
+
+// --- tripass kernel inspect --plot ------------------------------------------------------
+
+var kiPlot = &cli.StringFlag{
+	Name: "plot", Category: "Output",
+	Usage: "draw the n-mode singular values per axis (log scale) and the relative error against " +
+		"the cost of every candidate plan, chosen plan ringed, into `OUT.png`",
+}
+
+// plotKernel writes the --plot figure of 'kernel inspect', if asked for.
+func plotKernel(c *cli.Context, kernelPath string, an *tensor.Analysis) error {
+	out := c.String(kiPlot.Name)
+	if out == "" {
+		return nil
+	}
+	if !strings.EqualFold(filepath.Ext(out), ".png") {
+		return usageErrorf("--plot %s: the plot is a PNG image; give a name ending in .png", out)
+	}
+	if samePath(out, kernelPath) {
+		return usageErrorf("--plot %s: the output is also the input; choose another name", out)
+	}
+	title := fmt.Sprintf("%s (%d×%d×%d)", filepath.Base(kernelPath), an.Shape[0], an.Shape[1], an.Shape[2])
+	if err := preview.KernelPlot(an, title, out, c.Bool(kmOverwrite.Name)); err != nil {
+		if errors.Is(err, atomicfile.ErrExists) {
+			return usageErrorf("%s: %v", out, err)
+		}
+		return ioError(fmt.Errorf("%s: %w", out, unwrapPathError(err)))
+	}
+	note(c, "wrote %s", out)
+	return nil
 }
