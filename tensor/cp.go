@@ -133,8 +133,9 @@ func (c *CPResult) Reconstruct() *Dense {
 // start from the leading left singular vectors of the core's unfoldings (the HOSVD
 // start), from the unfoldings' largest columns, and from opt.Restarts random factors;
 // the run with the lowest error is kept. A run stops when the relative error changes
-// by no more than opt.Tol relative to itself, falls below 1e-14, or reaches
-// opt.MaxIter sweeps.
+// by no more than opt.Tol relative to itself, falls below 1e-14 (times the sum of the
+// term norms over ‖a‖ when that exceeds 1: the rounding floor of a cancelling sum), or
+// reaches opt.MaxIter sweeps.
 //
 // ALS may stop in a swamp or a local minimum; more restarts make that less likely. For
 // a tensor of CP rank above r whose border rank is at most r, the fit degenerates and
@@ -152,6 +153,12 @@ func CPALS(a *Dense, r int, opt CPOptions) (*CPResult, error) {
 	if err != nil {
 		return nil, err
 	}
+	return cpOnCore(a, norm, comp, r, opt)
+}
+
+// cpOnCore runs CPALS on the core of comp, a Tucker decomposition of a (of norm norm)
+// with orthonormal factors, and maps the fit back. opt must have its defaults set.
+func cpOnCore(a *Dense, norm float64, comp *TuckerDecomposition, r int, opt CPOptions) (*CPResult, error) {
 	x := comp.Core.Clone()
 	for i := range x.Data {
 		x.Data[i] /= norm
@@ -206,8 +213,8 @@ type alsRun struct {
 	err       float64
 	iter      int
 	converged bool
-	// diverging: Σ|w| rose and the error fell over the second half of a run that hit
-	// the iteration cap.
+	// diverging: Σ|w| rose and the error fell, both by more than 1e-4 relative, over
+	// the second half of a run that hit the iteration cap.
 	diverging bool
 }
 
@@ -226,6 +233,7 @@ func runALS(x *Dense, f [3][][]float64, opt CPOptions) *alsRun {
 	v := mat.NewSymDense(r, nil)
 	var eig mat.EigenSym
 	pinv := mat.NewDense(r, r, nil)
+	chol := make([]float64, r*r)
 	for it := 1; it <= opt.MaxIter; it++ {
 		for n := range 3 {
 			for c := range m {
@@ -244,7 +252,9 @@ func runALS(x *Dense, f [3][][]float64, opt CPOptions) *alsRun {
 					v.SetSym(p, q, g)
 				}
 			}
-			symPinv(pinv, v, &eig)
+			if !cholInverse(pinv, v, chol) {
+				symPinv(pinv, v, &eig)
+			}
 			// F⁽ⁿ⁾ = M V†, column by column.
 			for q := range r {
 				col := f[n][q]
@@ -274,7 +284,10 @@ func runALS(x *Dense, f [3][][]float64, opt CPOptions) *alsRun {
 		e := math.Sqrt(math.Max(e2, 0)) / math.Sqrt(xnorm2)
 		prev := run.err
 		run.err, run.iter = e, it
-		if e <= exactFit || math.Abs(prev-e) <= opt.Tol*e {
+		// Exact to rounding: a sum of terms carries rounding errors of a few units of
+		// float64 times the sum of the term norms, which cancellation makes larger
+		// than the result.
+		if e <= exactFit*math.Max(1, sumAbs(run.w)/math.Sqrt(xnorm2)) || math.Abs(prev-e) <= opt.Tol*e {
 			run.converged = true
 			break
 		}
@@ -283,7 +296,9 @@ func runALS(x *Dense, f [3][][]float64, opt CPOptions) *alsRun {
 		}
 	}
 	if !run.converged && midSum > 0 {
-		run.diverging = sumAbs(run.w) > midSum && run.err < midErr
+		// A real drift moves both by far more than 1e-4 over half a run; rounding noise
+		// at an exact fit does not.
+		run.diverging = sumAbs(run.w) > midSum*(1+1e-4) && run.err < midErr*(1-1e-4)
 	}
 	return run
 }
@@ -345,6 +360,61 @@ func residual(x *Dense, f [3][][]float64, w []float64) float64 {
 		res.AddScaled(-1, Outer(w[r], f[0][r], f[1][r], f[2][r]))
 	}
 	return res.Norm()
+}
+
+// cholInverse sets dst to v⁻¹ by a Cholesky factorisation in the scratch l (r×r) and
+// reports whether v is safely positive definite: every pivot above 1e-6 of the
+// largest diagonal entry, so that the inverse loses at most about six digits. Otherwise dst
+// is left undefined and the caller falls back to the pseudo-inverse.
+func cholInverse(dst *mat.Dense, v *mat.SymDense, l []float64) bool {
+	r := v.SymmetricDim()
+	top := 0.0
+	for i := range r {
+		top = math.Max(top, v.At(i, i))
+	}
+	for j := range r {
+		d := v.At(j, j)
+		for k := range j {
+			d -= l[j*r+k] * l[j*r+k]
+		}
+		if d <= 1e-6*top {
+			return false
+		}
+		d = math.Sqrt(d)
+		l[j*r+j] = d
+		for i := j + 1; i < r; i++ {
+			s := v.At(i, j)
+			for k := range j {
+				s -= l[i*r+k] * l[j*r+k]
+			}
+			l[i*r+j] = s / d
+		}
+	}
+	// Column c of v⁻¹ solves L·Lᵀ·x = e_c.
+	x := make([]float64, r)
+	for c := range r {
+		for i := range r {
+			s := 0.0
+			if i == c {
+				s = 1
+			}
+			for k := range i {
+				s -= l[i*r+k] * x[k]
+			}
+			x[i] = s / l[i*r+i]
+		}
+		for i := r - 1; i >= 0; i-- {
+			s := x[i]
+			for k := i + 1; k < r; k++ {
+				s -= l[k*r+i] * x[k]
+			}
+			x[i] = s / l[i*r+i]
+		}
+		for i := range r {
+			dst.Set(i, c, x[i])
+		}
+	}
+	return true
 }
 
 // symPinv sets dst to the pseudo-inverse of the symmetric matrix v, dropping

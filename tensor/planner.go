@@ -24,6 +24,11 @@ const DefaultMaxCPTerms = 6
 // error.
 const quickCPIter = 50
 
+// quickCPRank is the multilinear rank of the core that the short CP runs fit: the
+// leading singular subspaces that an r-term fit mostly lives in, with room to spare.
+// The reported error is still measured against the kernel itself.
+func quickCPRank(r int) int { return 2*r + 2 }
+
 // AnalyzeOptions controls Analyze. The zero value asks for the defaults.
 type AnalyzeOptions struct {
 	// Tolerance is the largest relative Frobenius error a chosen plan may have.
@@ -73,14 +78,17 @@ type Analysis struct {
 	// Tolerance is the relative error the choice was made for.
 	Tolerance float64
 	// ModeSingularValues holds the n-mode singular values for x, y and z, each
-	// descending: the singular values of the kernel's unfoldings (see Unfold).
+	// descending: the singular values of the kernel's unfoldings (see Unfold), as many
+	// as the smaller side of the unfolding (kx or ky·kz for x, and so on).
 	ModeSingularValues [3][]float64
 	// MultilinearRank is the multilinear rank at the tolerance: per mode, the smallest
 	// rank whose discarded squared n-mode singular values sum to at most
 	// tol²‖K‖²/3, which keeps the truncated HOSVD within tol (see RanksForTolerance).
 	MultilinearRank [3]int
 	// ExactRank is the numerical multilinear rank: n-mode singular values above
-	// NumericalZero times the largest count (see NumericalRank).
+	// NumericalZero times the largest count (see NumericalRank). A kernel stored in
+	// float32 carries rounding noise far above that threshold, so its ExactRank is
+	// usually full; MultilinearRank then tells its structure within the tolerance.
 	ExactRank [3]int
 	// Separable says the kernel is exactly rank one, one outer product x∘y∘z: its
 	// numerical multilinear rank is (1, 1, 1).
@@ -116,7 +124,8 @@ func (a *Analysis) Speedup() float64 {
 //     that meets the tolerance without degenerating (more terms only cost more). A
 //     number of terms whose error is bounded above the tolerance by the discarded
 //     n-mode singular values (an R-term sum has multilinear rank at most R in each mode)
-//     gets only a short run, for reporting;
+//     gets only a short run on the leading (2R+2)-dimensional singular subspaces, for
+//     reporting;
 //   - Tucker at the ranks of the sequentially truncated HOSVD for the tolerance
 //     (Vannieuwenhoven, Vandebril & Meerbergen, SIAM J. Sci. Comput. 34(2), 2012), in
 //     both pass orders: r1·kx + r1·r2·ky + r1·r2·kz with x first, r2·ky + r1·r2·kx +
@@ -163,13 +172,24 @@ func Analyze(k *Dense, opt AnalyzeOptions) (*Analysis, error) {
 		an.Separable = an.Separable && an.ExactRank[n] == 1
 	}
 
-	// CP with 1, 2, … terms.
+	// CP with 1, 2, … terms, fitted on the HOSVD core cut where the discarded part is
+	// within a tenth of the tolerance (and never beyond the numerical rank), which
+	// keeps exact structure exact and noise out of the fit; the short runs on a core
+	// cut further (see quickCPRank). Errors are measured against the kernel itself.
+	exact := RanksForTolerance(h.Values, an.Norm, tol/10)
+	for n := range 3 {
+		exact[n] = max(min(exact[n], an.ExactRank[n]), 1)
+	}
 	for r := 1; r <= maxCP; r++ {
 		cpOpt := CPOptions{Restarts: opt.Restarts, Seed: opt.Seed}
+		core := exact
 		if cpLowerBound(h.Values, r)/an.Norm > tol {
 			cpOpt.MaxIter, cpOpt.Restarts, cpOpt.HOSVDStartOnly = quickCPIter, -1, true
+			for n := range 3 {
+				core[n] = min(core[n], quickCPRank(r))
+			}
 		}
-		cp, err := CPALS(k, r, cpOpt)
+		cp, err := cpOnCore(k, an.Norm, h.Truncate(core), r, cpOpt.withDefaults())
 		if err != nil {
 			return nil, fmt.Errorf("CP with %d terms: %w", r, err)
 		}

@@ -153,6 +153,30 @@ func TestPlanLaplacian(t *testing.T) {
 	}
 }
 
+// TestPlanFloat32Kernel: a kernel stored in float32 carries rounding noise of about
+// 6e-8 relative, so it is no longer exactly of low rank, but within the default
+// tolerance it still plans as its structure says: the LoG as 3 CP terms, with
+// multilinear rank (2,2,2) at the tolerance and its 2-term fits still degenerate.
+// expected: REFERENCES.md (LoG structure); float32 rounding is IEEE 754 binary32.
+func TestPlanFloat32Kernel(t *testing.T) {
+	for _, n := range []int{15, 31} {
+		k := laplacianOfGaussian(float64(n)/9, n/2)
+		for i, v := range k.Data {
+			k.Data[i] = float64(float32(v))
+		}
+		a := analyze(t, k, AnalyzeOptions{})
+		if a.Separable || a.ExactRank == [3]int{2, 2, 2} || a.MultilinearRank != [3]int{2, 2, 2} {
+			t.Errorf("%d³: exact rank %v, multilinear rank %v", n, a.ExactRank, a.MultilinearRank)
+		}
+		if a.Chosen.Form != CP || a.Chosen.Terms != 3 || a.Chosen.RelError > 1e-7 {
+			t.Errorf("%d³: chosen %v %d terms error %g", n, a.Chosen.Form, a.Chosen.Terms, a.Chosen.RelError)
+		}
+		if o := option(a, CP, 2); o == nil || !o.Degenerate {
+			t.Errorf("%d³: 2-term option %+v, want degenerate", n, o)
+		}
+	}
+}
+
 // TestPlanDifferenceOfGaussians: 2 CP terms, multilinear rank (2,2,2).
 // expected: REFERENCES.md.
 func TestPlanDifferenceOfGaussians(t *testing.T) {
