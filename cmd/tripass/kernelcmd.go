@@ -726,21 +726,7 @@ func printInspect(w io.Writer, path string, k *tensor.Dense, an *tensor.Analysis
 	}
 	ch := an.Chosen
 	fmt.Fprintf(w, "\nplan       %s: %d multiply-adds per voxel against %d direct, predicted speed-up %.1f×, relative error %.2e\n",
-		describePlan(ch), ch.Macs, an.DirectMacs, speedup(an.DirectMacs, ch.Macs), ch.RelError)
-}
-
-// describePlan names a planner option in a few words.
-func describePlan(o *tensor.Option) string {
-	switch o.Form {
-	case tensor.CP:
-		if o.Terms == 1 {
-			return "cp, 1 separable term"
-		}
-		return fmt.Sprintf("cp, %d separable terms", o.Terms)
-	case tensor.Tucker:
-		return fmt.Sprintf("tucker, ranks (%d,%d,%d), order %s", o.Ranks[0], o.Ranks[1], o.Ranks[2], o.Order)
-	}
-	return "direct"
+		describeOption(ch), ch.Macs, an.DirectMacs, speedup(an.DirectMacs, ch.Macs), ch.RelError)
 }
 
 // Wire form of --factors.
