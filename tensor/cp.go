@@ -45,6 +45,9 @@ const (
 	// sigma ratio of 1.6, say) stay above it while ALS still moves; the 2-term fits of
 	// the Laplacian stencil fall below it within a hundred sweeps.
 	degenerateCongruence = 0.8
+	// blatantDegeneracy: a run whose terms sum to this many times DegenerateRatio·‖a‖
+	// is stopped early, since it can only end degenerate.
+	blatantDegeneracy = 10
 	// exactFit is the relative error below which a run stops as exact: a few units of
 	// float64 rounding in a sum of terms.
 	exactFit = 1e-14
@@ -135,7 +138,8 @@ func (c *CPResult) Reconstruct() *Dense {
 // the run with the lowest error is kept. A run stops when the relative error changes
 // by no more than opt.Tol relative to itself, falls below 1e-14 (times the sum of the
 // term norms over ‖a‖ when that exceeds 1: the rounding floor of a cancelling sum), or
-// reaches opt.MaxIter sweeps.
+// reaches opt.MaxIter sweeps; a run whose term norms sum to more than ten times
+// opt.DegenerateRatio·‖a‖ is abandoned as degenerate.
 //
 // ALS may stop in a swamp or a local minimum; more restarts make that less likely. For
 // a tensor of CP rank above r whose border rank is at most r, the fit degenerates and
@@ -290,6 +294,9 @@ func runALS(x *Dense, f [3][][]float64, opt CPOptions) *alsRun {
 		if e <= exactFit*math.Max(1, sumAbs(run.w)/math.Sqrt(xnorm2)) || math.Abs(prev-e) <= opt.Tol*e {
 			run.converged = true
 			break
+		}
+		if sumAbs(run.w) > blatantDegeneracy*opt.DegenerateRatio*math.Sqrt(xnorm2) {
+			break // the terms already diverge far past the degeneracy mark
 		}
 		if it == opt.MaxIter/2 {
 			midSum, midErr = sumAbs(run.w), e

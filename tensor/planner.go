@@ -57,8 +57,9 @@ type Option struct {
 	Order Order
 	// RelError is the true relative error ‖K − Plan.Reconstruct()‖/‖K‖.
 	RelError float64
-	// Bound is, for a Tucker option taken from the HOSVD, the relative error bound of
-	// De Lathauwer et al. (2000); zero otherwise.
+	// Bound is, for a Tucker option, the relative error bound of De Lathauwer et al.
+	// (2000) at its ranks, which holds for the truncated HOSVD and the sequentially
+	// truncated one alike (Vannieuwenhoven et al. 2012); zero otherwise.
 	Bound float64
 	// Macs is Plan.Macs(), the multiply-adds per output voxel.
 	Macs int
@@ -207,7 +208,9 @@ func Analyze(k *Dense, opt AnalyzeOptions) (*Analysis, error) {
 		return nil, err
 	}
 	for _, order := range []Order{XYZ, YXZ} {
-		an.Options = append(an.Options, newOption(k, an.Norm, tuckerPlan(k, st, order)))
+		o := newOption(k, an.Norm, tuckerPlan(k, st, order))
+		o.Bound = TruncationBound(h.Values, st.Ranks()) / an.Norm
+		an.Options = append(an.Options, o)
 	}
 	search := newRankSearch(h.Core)
 	for _, order := range []Order{XYZ, YXZ} {
