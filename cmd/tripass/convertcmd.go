@@ -24,7 +24,7 @@ Examples:
    tripass convert scan.raw scan.tif --raw-size 512,512,300 --raw-type int16 --raw-endian big --spacing 0.1,0.1,0.1mm`,
 	Flags: append(append([]cli.Flag{
 		&cli.StringFlag{Name: "type", Usage: "sample type of OUT (uint8, uint16, int16, uint32, int32, float32, float64); default: IN's"},
-		flagQuiet,
+		flagQuiet, flagLog,
 	}, inputFlags()...), outputFlags()...),
 	Action: convertAction,
 }

@@ -38,7 +38,7 @@ var (
 )
 
 func filterFlags(own ...cli.Flag) []cli.Flag {
-	fl := append(own, flagEdge, flagFill, flagThreads, flagOutType, flagQuiet)
+	fl := append(own, flagEdge, flagFill, flagThreads, flagOutType, flagQuiet, flagLog)
 	fl = append(fl, inputFlags()...)
 	return append(fl, outputFlags()...)
 }
@@ -87,6 +87,7 @@ func runFilter(c *cli.Context, name string, build func(c *cli.Context, h volume.
 	}
 	note(c, "%s: %s", name, job.what)
 	p := newProgress(c, name, h)
+	p.plan = job.what // for the --log json summary
 	opt := volume.FilterOptions{
 		Edge:     edge,
 		Fill:     c.Float64(flagFill.Name),

@@ -27,7 +27,7 @@ Examples:
 	Flags: append([]cli.Flag{
 		&cli.BoolFlag{Name: "stats", Usage: "stream once over the voxels for min, max, mean, standard deviation and NaN/Inf counts"},
 		&cli.BoolFlag{Name: "json", Usage: "print one JSON object instead of text"},
-		flagQuiet,
+		flagQuiet, flagLog,
 	}, inputFlags()...),
 	Action: infoAction,
 }
