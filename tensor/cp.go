@@ -659,13 +659,12 @@ func expand(run *alsRun, comp *TuckerDecomposition, norm float64) *CPResult {
 	sort.SliceStable(order, func(p, q int) bool { return math.Abs(run.w[order[p]]) > math.Abs(run.w[order[q]]) })
 	res := &CPResult{Weights: make([]float64, r)}
 	for n := range 3 {
-		rows, _ := comp.Factors[n].Dims()
-		res.Factors[n] = mat.NewDense(rows, r, nil)
+		res.Factors[n] = mat.NewDense(nrows(comp.Factors[n]), r, nil)
 	}
 	for p, q := range order {
 		w := run.w[q] * norm
 		for n := range 3 {
-			col := make([]float64, rows(comp.Factors[n]))
+			col := make([]float64, nrows(comp.Factors[n]))
 			u := comp.Factors[n]
 			for i := range col {
 				s := 0.0
@@ -693,7 +692,7 @@ func expand(run *alsRun, comp *TuckerDecomposition, norm float64) *CPResult {
 	return res
 }
 
-func rows(m *mat.Dense) int { r, _ := m.Dims(); return r }
+func nrows(m *mat.Dense) int { r, _ := m.Dims(); return r }
 
 func resize(s []float64, n int) []float64 {
 	if cap(s) < n {

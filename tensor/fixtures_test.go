@@ -36,21 +36,16 @@ func sampledGauss(sigma float64, r int) (g, g2 []float64) {
 // grid directly in 3D (not as a product of 1D kernels), normalised to sum 1.
 func gaussian3D(sigma [3]float64, r [3]int) *Dense {
 	k := New(2*r[0]+1, 2*r[1]+1, 2*r[2]+1)
-	sum := 0.0
 	for z := range k.K {
 		for y := range k.J {
 			for x := range k.I {
 				X, Y, Z := float64(x-r[0]), float64(y-r[1]), float64(z-r[2])
 				v := math.Exp(-0.5 * (X*X/sq(sigma[0]) + Y*Y/sq(sigma[1]) + Z*Z/sq(sigma[2])))
 				k.Set(x, y, z, v)
-				sum += v
 			}
 		}
 	}
-	for i := range k.Data {
-		k.Data[i] /= sum
-	}
-	return k
+	return normalizeSum(k)
 }
 
 // laplacianOfGaussian is g″∘g∘g + g∘g″∘g + g∘g∘g″ for an isotropic sampled Gaussian.
@@ -101,7 +96,6 @@ func tiltedGaussian(n int, sigma [3]float64, deg float64) *Dense {
 	c, s := math.Cos(th), math.Sin(th)
 	k := New(n, n, n)
 	h := n / 2
-	sum := 0.0
 	for z := range n {
 		for y := range n {
 			for x := range n {
@@ -110,9 +104,17 @@ func tiltedGaussian(n int, sigma [3]float64, deg float64) *Dense {
 				u, w := c*X-s*Z, s*X+c*Z
 				v := math.Exp(-0.5 * (u*u/sq(sigma[0]) + Y*Y/sq(sigma[1]) + w*w/sq(sigma[2])))
 				k.Set(x, y, z, v)
-				sum += v
 			}
 		}
+	}
+	return normalizeSum(k)
+}
+
+// normalizeSum scales k to sum 1 and returns it.
+func normalizeSum(k *Dense) *Dense {
+	sum := 0.0
+	for _, v := range k.Data {
+		sum += v
 	}
 	for i := range k.Data {
 		k.Data[i] /= sum

@@ -155,8 +155,11 @@ func Analyze(k *Dense, opt AnalyzeOptions) (*Analysis, error) {
 	if maxCP == 0 {
 		maxCP = DefaultMaxCPTerms
 	}
+	// Every plan refers to one copy of the kernel, so that later changes to k do not
+	// reach them.
+	k = k.Clone()
 	an := &Analysis{Shape: k.Dims(), Norm: k.Norm(), Tolerance: tol, DirectMacs: k.NonZero()}
-	an.Options = append(an.Options, Option{Form: Direct, Macs: an.DirectMacs, Plan: &Plan{Form: Direct, Kernel: k.Clone()}})
+	an.Options = append(an.Options, Option{Form: Direct, Macs: an.DirectMacs, Plan: &Plan{Form: Direct, Kernel: k}})
 	if an.Norm == 0 {
 		an.Chosen = &an.Options[0]
 		return an, nil
@@ -315,11 +318,11 @@ func cpLowerBound(values [3][]float64, r int) float64 {
 	return math.Sqrt(worst)
 }
 
-// cpPlan returns the plan of CP fit c of kernel k: one branch of one leaf per term, the
+// cpPlan returns the plan of CP fit c of kernel k (which the plan keeps): one branch of one leaf per term, the
 // weight folded into the z taps, in order XYZ (the order does not change a CP plan's
 // cost).
 func cpPlan(k *Dense, c *CPResult) *Plan {
-	p := &Plan{Form: CP, Order: XYZ, Kernel: k.Clone()}
+	p := &Plan{Form: CP, Order: XYZ, Kernel: k}
 	for r, w := range c.Weights {
 		z := mat.Col(nil, r, c.Factors[2])
 		for i := range z {
@@ -334,12 +337,13 @@ func cpPlan(k *Dense, c *CPResult) *Plan {
 	return p
 }
 
-// tuckerPlan returns the plan of Tucker decomposition t of kernel k in the given order:
+// tuckerPlan returns the plan of Tucker decomposition t of kernel k (which the plan
+// keeps) in the given order:
 // with XYZ, one branch per x factor column a, each with one leaf per y factor column b
 // whose z taps are Σ_c core(a, b, c)·U⁽³⁾(:, c); with YXZ the roles of x and y swap.
 func tuckerPlan(k *Dense, t *TuckerDecomposition, order Order) *Plan {
 	r := t.Ranks()
-	p := &Plan{Form: Tucker, Order: order, Kernel: k.Clone(), Ranks: r}
+	p := &Plan{Form: Tucker, Order: order, Kernel: k, Ranks: r}
 	first, second := 0, 1
 	if order == YXZ {
 		first, second = 1, 0
