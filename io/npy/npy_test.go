@@ -291,9 +291,6 @@ func TestLiveNumPy(t *testing.T) {
 	if _, err := os.Stat(python); err != nil {
 		t.Skip("no " + python)
 	}
-	if err := exec.Command(python, "-c", "import numpy").Run(); err != nil {
-		t.Skip("no numpy for " + python)
-	}
 	dir := t.TempDir()
 	rng := rand.New(rand.NewPCG(7, 3))
 	// Ours → NumPy.
@@ -340,6 +337,9 @@ print("ok")
 	cmd := exec.Command(python, "-c", script)
 	cmd.Stdin = strings.NewReader(strings.Join(cases, "\n") + "\n")
 	out, err := cmd.CombinedOutput()
+	if strings.Contains(string(out), "ModuleNotFoundError") {
+		t.Skip("no numpy for " + python)
+	}
 	if err != nil || !strings.Contains(string(out), "ok") {
 		t.Fatalf("numpy.load of our files: %v\n%s", err, out)
 	}
