@@ -190,3 +190,19 @@ func (r *rangeWriter) WriteSlice(s *Slice) error {
 	}
 	return nil
 }
+
+// CopyRange is Copy restricted to slices [z0, z1) of src: it seeks to z0 when src
+// implements SliceSeeker (and reads through the slices before it otherwise), then
+// copies z1−z0 slices converted to t. progress gets the number of slices copied.
+func CopyRange(dst SliceWriter, src Source, t SampleType, z0, z1 int, progress func(done int)) (clamped int64, err error) {
+	h := src.Header()
+	if z0 < 0 || z1 > h.NZ || z0 >= z1 {
+		return 0, fmt.Errorf("slice range [%d, %d) is not inside [0, %d)", z0, z1, h.NZ)
+	}
+	win := &windowSource{src: src, h: h}
+	for z := z0; z < z1; z++ {
+		win.idx = append(win.idx, z)
+	}
+	win.h.NZ = len(win.idx)
+	return Copy(dst, win, t, progress)
+}

@@ -106,3 +106,20 @@ func TestHalo(t *testing.T) {
 		t.Errorf("Halo = %d, %d; want 1, 2", b, a)
 	}
 }
+
+func TestCopyRange(t *testing.T) {
+	h := Header{NX: 3, NY: 2, NZ: 6, Type: Float32}
+	data := make([]float32, h.Voxels())
+	for i := range data {
+		data[i] = float32(i)
+	}
+	for _, src := range []Source{NewMemSource(h, data), noSeek{NewMemSource(h, data)}} {
+		var sink MemSink
+		if _, err := CopyRange(&sink, src, Uint16, 2, 5, nil); err != nil {
+			t.Fatal(err)
+		}
+		if sink.Slices != 3 || sink.Data[0] != 12 || sink.Data[len(sink.Data)-1] != 29 {
+			t.Errorf("copied %d slices, first %v last %v; want 3, 12, 29", sink.Slices, sink.Data[0], sink.Data[len(sink.Data)-1])
+		}
+	}
+}

@@ -47,26 +47,9 @@ func convertAction(c *cli.Context) error {
 			return usageErrorf("--type: %v", err)
 		}
 	}
-	sink, err := createOutput(c, outPath, h, outputOptionsFrom(in), inPath)
-	if err != nil {
-		return err
-	}
-	p := newProgress(c, "convert", h)
-	clamped, err := volume.Copy(sink, in, h.Type, p.update)
-	p.done()
-	if err != nil {
-		sink.Abort()
-		return streamError(inPath, outPath, err)
-	}
-	if err := sink.Close(); err != nil {
-		sink.Abort()
-		return ioError(fmt.Errorf("%s: %w", outPath, err))
-	}
-	note(c, "wrote %s: %d×%d×%d %s", outPath, h.NX, h.NY, h.NZ, h.Type)
-	if clamped > 0 {
-		note(c, "%d voxels were outside the %s range and were clamped", clamped, h.Type)
-	}
-	return nil
+	job := &streamJob{name: "convert", inPath: inPath, outPath: outPath, in: in, outH: h}
+	_, err = job.run(c)
+	return err
 }
 
 // note prints an informational line on stderr unless --quiet was given.

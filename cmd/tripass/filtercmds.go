@@ -70,48 +70,28 @@ func runFilter(c *cli.Context, name string, build func(c *cli.Context, h volume.
 	}
 	defer in.Close()
 	h := in.Header()
-	job, err := build(c, h)
+	fj, err := build(c, h)
 	if err != nil {
 		return err
 	}
 	outH := h
-	outH.Type = job.outType
+	outH.Type = fj.outType
 	if s := c.String(flagOutType.Name); s != "" {
 		if outH.Type, err = volume.ParseSampleType(s); err != nil {
 			return usageErrorf("--type: %v", err)
 		}
 	}
-	sink, err := createOutput(c, outPath, outH, outputOptionsFrom(in), inPath)
-	if err != nil {
-		return err
+	job := &streamJob{
+		name: name, inPath: inPath, outPath: outPath, in: in, outH: outH,
+		plans: fj.plans, combine: fj.combine, what: fj.what,
+		opt: volume.FilterOptions{
+			Edge:    edge,
+			Fill:    c.Float64(flagFill.Name),
+			Threads: c.Int(flagThreads.Name),
+		},
 	}
-	note(c, "%s: %s", name, job.what)
-	p := newProgress(c, name, h)
-	p.plan = job.what // for the --log json summary
-	opt := volume.FilterOptions{
-		Edge:     edge,
-		Fill:     c.Float64(flagFill.Name),
-		Threads:  c.Int(flagThreads.Name),
-		Progress: func(done, total int) { p.update(done) },
-	}
-	st, err := volume.Filter(sink, in, outH.Type, job.plans, job.combine, opt)
-	p.done()
-	if err != nil {
-		sink.Abort()
-		return streamError(inPath, outPath, err)
-	}
-	if err := sink.Close(); err != nil {
-		sink.Abort()
-		return err
-	}
-	note(c, "wrote %s: %d×%d×%d %s", outPath, h.NX, h.NY, h.NZ, outH.Type)
-	if st.NaN > 0 || st.Inf > 0 {
-		note(c, "the input holds %d NaN and %d infinite voxels; they spread into their neighbourhoods", st.NaN, st.Inf)
-	}
-	if st.Clamped > 0 {
-		note(c, "%d output voxels were outside the %s range and were clamped (use --type float32 to keep them)", st.Clamped, outH.Type)
-	}
-	return nil
+	_, err = job.run(c)
+	return err
 }
 
 // parseWidths turns a --sigma or similar value ("2", "1,1,3", "1.5um", "0.5,0.5,2um")
