@@ -124,7 +124,7 @@ def npy_fixtures(outdir):
     os.makedirs(outdir, exist_ok=True)
     manifest = []
     shapes = [(2, 3, 4), (5,), (3, 4), (), (0, 3)]
-    descrs = ["<f8", ">f8", "<f4", ">f4", "|i1", "|u1", "<i2", ">i2", "<u2", "<i4", ">i4",
+    descrs = ["<f8", ">f8", "<f4", ">f4", "<f2", ">f2", "|i1", "|u1", "<i2", ">i2", "<u2", "<i4", ">i4",
               "<u4", "<i8", ">i8", "<u8", "|b1"]
     for descr in descrs:
         dt = np.dtype(descr)

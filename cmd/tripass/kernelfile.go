@@ -17,7 +17,7 @@ import (
 
 // kernelFileHelp is the paragraph every command that reads or writes kernel files
 // shows in its help.
-const kernelFileHelp = `Kernel files: NumPy .npy (float32 or float64, also integer; either byte order; C or
+const kernelFileHelp = `Kernel files: NumPy .npy (float16, float32, float64 or integer; either byte order; C or
 Fortran order) or tripass's text format (.txt). A 3D .npy array has shape (kz, ky, kx):
 the last axis is x, as in a stack read slice by slice; a 2D array (ky, kx) is a flat
 kernel in the x-y plane and a 1D array (kx) a kernel along x. The text format has one

@@ -12,8 +12,9 @@
 // The data follow as the raw elements in C (last index fastest) or Fortran (first index
 // fastest) order.
 //
-// Read accepts float32 and float64 in either byte order, and also the integer and
-// boolean dtypes, converting every element to float64 in C order. Write writes float64
+// Read accepts float32 and float64 in either byte order, and also float16 and the
+// integer and boolean dtypes, converting every element to float64 in C order (exactly,
+// except for 64-bit integers beyond 2⁵³). Write writes float64
 // or float32, little-endian, C order, version 1.0 (2.0 if the header would not fit),
 // with the same header bytes numpy.save writes.
 //

@@ -224,7 +224,7 @@ func TestMalformed(t *testing.T) {
 		{"truncated data", v1("{'descr': '<f8', 'fortran_order': False, 'shape': (3, 3), }", f8(8)), false},
 		{"huge claim", v1("{'descr': '<f8', 'fortran_order': False, 'shape': (1000000000000,), }", f8(4)), false},
 		{"complex", v1("{'descr': '<c16', 'fortran_order': False, 'shape': (1,), }", make([]byte, 16)), true},
-		{"float16", v1("{'descr': '<f2', 'fortran_order': False, 'shape': (1,), }", make([]byte, 2)), true},
+		{"float128", v1("{'descr': '<f16', 'fortran_order': False, 'shape': (1,), }", make([]byte, 16)), true},
 		{"structured", v1("{'descr': [('a', '<f4'), ('b', '<i4')], 'fortran_order': False, 'shape': (1,), }", f8(1)), true},
 		{"object", v1("{'descr': '|O', 'fortran_order': False, 'shape': (1,), }", f8(1)), true},
 		{"pipe with size 8", v1("{'descr': '|f8', 'fortran_order': False, 'shape': (1,), }", f8(1)), false},
@@ -263,6 +263,25 @@ func TestReadFileChecksSize(t *testing.T) {
 	_, err := ReadFile(p)
 	if err == nil || !strings.Contains(err.Error(), "file has 40") {
 		t.Errorf("got %v, want a size error", err)
+	}
+}
+
+// TestHalf checks float16 decoding on the format's landmarks (IEEE 754-2008 binary16):
+// 1, −2, the largest finite 65504, the smallest subnormal 2⁻²⁴, infinities and NaN.
+func TestHalf(t *testing.T) {
+	for _, tc := range []struct {
+		bits uint16
+		want float64
+	}{
+		{0x3c00, 1}, {0xc000, -2}, {0x7bff, 65504}, {0x0001, math.Ldexp(1, -24)},
+		{0x0000, 0}, {0x3555, 0.333251953125}, {0x7c00, math.Inf(1)}, {0xfc00, math.Inf(-1)},
+	} {
+		if got := halfToFloat64(tc.bits); got != tc.want {
+			t.Errorf("%#04x: %v, want %v", tc.bits, got, tc.want)
+		}
+	}
+	if !math.IsNaN(halfToFloat64(0x7e00)) {
+		t.Error("0x7e00 is not NaN")
 	}
 }
 

@@ -232,14 +232,14 @@ func (h *Header) parseDescr() error {
 	ok := false
 	switch h.kind {
 	case 'f':
-		ok = size == 4 || size == 8
+		ok = size == 2 || size == 4 || size == 8
 	case 'i', 'u':
 		ok = size == 1 || size == 2 || size == 4 || size == 8
 	case 'b':
 		ok = size == 1
 	}
 	if !ok {
-		return UnsupportedError(fmt.Sprintf("dtype %q (want float32, float64, an integer or bool)", d))
+		return UnsupportedError(fmt.Sprintf("dtype %q (want float16, float32, float64, an integer or bool)", d))
 	}
 	return nil
 }
@@ -328,6 +328,10 @@ func (h *Header) decode(dst []float64, b []byte) []float64 {
 		for i := 0; i+4 <= len(b); i += 4 {
 			dst = append(dst, float64(math.Float32frombits(o.Uint32(b[i:]))))
 		}
+	case h.kind == 'f' && h.size == 2:
+		for i := 0; i+2 <= len(b); i += 2 {
+			dst = append(dst, halfToFloat64(o.Uint16(b[i:])))
+		}
 	case h.kind == 'i' && h.size == 1:
 		for _, v := range b {
 			dst = append(dst, float64(int8(v)))
@@ -372,6 +376,26 @@ func (h *Header) decode(dst []float64, b []byte) []float64 {
 		panic("npy: decode with an unchecked dtype") // parseDescr admits no other
 	}
 	return dst
+}
+
+// halfToFloat64 converts an IEEE 754 binary16 value (NumPy's float16) exactly.
+func halfToFloat64(h uint16) float64 {
+	sign := 1.0
+	if h&0x8000 != 0 {
+		sign = -1
+	}
+	exp := int(h>>10) & 0x1f
+	frac := float64(h & 0x3ff)
+	switch exp {
+	case 0: // zero or subnormal: frac·2⁻²⁴
+		return sign * math.Ldexp(frac, -24)
+	case 0x1f:
+		if frac != 0 {
+			return math.NaN()
+		}
+		return sign * math.Inf(1)
+	}
+	return sign * math.Ldexp(1024+frac, exp-25) // (1 + frac/1024)·2^(exp−15)
 }
 
 // fortranToC reorders data stored first index fastest into last index fastest.
