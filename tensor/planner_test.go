@@ -404,3 +404,51 @@ func BenchmarkAnalyze31(b *testing.B) {
 		})
 	}
 }
+
+// TestAnalyzeRandomTucker is a property test (fixed seeds): a kernel made as a random
+// core of multilinear rank r times random factors has exact multilinear rank r, and
+// the planner's choice is within tolerance and costs no more than applying that Tucker
+// form exactly in the better order, or directly.
+// expected: the multilinear rank of core ×ₙ factors with generic factors is the core's
+// (De Lathauwer et al. 2000); the cost model of the issue.
+func TestAnalyzeRandomTucker(t *testing.T) {
+	rng := rand.New(rand.NewPCG(17, 17))
+	for trial := range 30 {
+		var d, r [3]int
+		for n := range 3 {
+			d[n] = 1 + rng.IntN(12)
+			r[n] = 1 + rng.IntN(min(d[n], 4))
+		}
+		for n := range 3 {
+			r[n] = min(r[n], r[(n+1)%3]*r[(n+2)%3])
+		}
+		k := randomTensor(r[0], r[1], r[2], uint64(trial))
+		for n := range 3 {
+			f := randomTensor(d[n], r[n], 1, uint64(1000+3*trial+n))
+			m := Unfold(nil, f, 0) // d[n] × r[n] random normal
+			k = ModeProduct(k, n, m)
+		}
+		a := analyze(t, k, AnalyzeOptions{Seed: uint64(trial)})
+		if a.ExactRank != r {
+			t.Errorf("trial %d %v: exact rank %v, want %v", trial, d, a.ExactRank, r)
+		}
+		limit := min(tuckerMacs(d, r, XYZ), tuckerMacs(d, r, YXZ), a.DirectMacs)
+		if a.Chosen.Macs > limit {
+			t.Errorf("trial %d %v ranks %v: chosen %v %v at %d, want at most %d", trial, d, r, a.Chosen.Form, a.Chosen.Ranks, a.Chosen.Macs, limit)
+		}
+	}
+}
+
+// TestAnalyzePlantedCP: a kernel made of R ≤ 4 random separable terms plans as R CP
+// terms, R·(kx+ky+kz) multiply-adds, cheaper than any Tucker form of it.
+// expected: exact recovery of a planted CP tensor (Kolda & Bader 2009); the issue's
+// cost model.
+func TestAnalyzePlantedCP(t *testing.T) {
+	for r := 1; r <= 4; r++ {
+		k := plantedCP([3]int{9, 11, 7}, r, uint64(40+r))
+		a := analyze(t, k, AnalyzeOptions{})
+		if a.Chosen.Form != CP || a.Chosen.Terms != r || a.Chosen.Macs != r*27 || a.Chosen.RelError > 1e-8 {
+			t.Errorf("R=%d: chosen %v %d terms at %d, error %g", r, a.Chosen.Form, a.Chosen.Terms, a.Chosen.Macs, a.Chosen.RelError)
+		}
+	}
+}
