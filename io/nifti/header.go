@@ -331,7 +331,7 @@ func (r *rawHeader) parse(path string) (*parsed, error) {
 	switch r.magic {
 	case magicSingle:
 	case magicPair:
-		return nil, &UnsupportedError{Path: path, Msg: "a two-file NIfTI-1 header (magic \"ni1\", data in a separate .img) is not supported; save it as a single .nii"}
+		return nil, &UnsupportedError{Path: path, Msg: "a two-file NIfTI-1 header (a .hdr/.img pair, magic \"ni1\") is not supported; save it as a single .nii"}
 	default:
 		return nil, &FormatError{Path: path, Msg: fmt.Sprintf("no NIfTI-1 magic \"n+1\" at byte %d (found %q); Analyze 7.5 files are not supported", offMagic, bytes.TrimRight(r.magic[:], "\x00"))}
 	}
@@ -394,13 +394,14 @@ func (r *rawHeader) parse(path string) (*parsed, error) {
 
 	// The data offset: a whole number of bytes after the header and extension flag.
 	v := float64(r.voxOffset)
+	vs := strconv.FormatFloat(v, 'g', -1, 32) // as stored, without float64 digits
 	switch {
 	case math.IsNaN(v) || math.IsInf(v, 0) || v != math.Trunc(v):
-		return nil, &FormatError{Path: path, Msg: fmt.Sprintf("vox_offset %g is not a whole number of bytes", v)}
+		return nil, &FormatError{Path: path, Msg: fmt.Sprintf("vox_offset %s is not a whole number of bytes", vs)}
 	case v < minVoxOffset:
-		return nil, &FormatError{Path: path, Msg: fmt.Sprintf("vox_offset %g is inside the header (a .nii file's data start at byte %d or later)", v, minVoxOffset)}
+		return nil, &FormatError{Path: path, Msg: fmt.Sprintf("vox_offset %s is inside the header (a .nii file's data start at byte %d or later)", vs, minVoxOffset)}
 	case v > 1<<62:
-		return nil, &FormatError{Path: path, Msg: fmt.Sprintf("vox_offset %g is beyond any file", v)}
+		return nil, &FormatError{Path: path, Msg: fmt.Sprintf("vox_offset %s is beyond any file", vs)}
 	}
 	p.voxOffset = int64(v)
 

@@ -89,7 +89,7 @@ func newReader(path string, f io.ReadSeekCloser, size int64) (*Reader, error) {
 	n, err := io.ReadFull(f, lead[:])
 	if err != nil && n < len(lead) {
 		if errors.Is(err, io.EOF) || errors.Is(err, io.ErrUnexpectedEOF) {
-			return nil, &FormatError{Path: path, Msg: fmt.Sprintf("header truncated: the file is %d bytes, a NIfTI-1 header %d", size, headerSize)}
+			return nil, &FormatError{Path: path, Msg: fmt.Sprintf("header truncated: the file is %d bytes, a NIfTI-1 header needs %d", size, headerSize)}
 		}
 		return nil, fmt.Errorf("nifti: %s: reading the header: %w", path, err)
 	}
@@ -151,7 +151,11 @@ func (r *Reader) rewind() error {
 		return fmt.Errorf("nifti: %s: seek: %w", r.path, err)
 	}
 	if r.br == nil {
-		r.br = bufio.NewReaderSize(r.f, readBufSize)
+		n := readBufSize
+		if r.size < int64(n) {
+			n = int(max(r.size, 16)) // a small file needs no large buffer
+		}
+		r.br = bufio.NewReaderSize(r.f, n)
 	} else {
 		r.br.Reset(r.f)
 	}
@@ -201,9 +205,9 @@ func (r *Reader) dataError(what string, err error) error {
 	var corrupt flate.CorruptInputError
 	switch {
 	case errors.Is(err, io.EOF) || errors.Is(err, io.ErrUnexpectedEOF):
-		msg := "the file ends early, in " + what
+		msg := "truncated file: it ends in " + what
 		if r.gz != nil {
-			msg = "the compressed data end early (truncated .nii.gz), in " + what
+			msg = "truncated .nii.gz: the compressed data end in " + what
 		}
 		return &FormatError{Path: r.path, Msg: msg, Err: io.ErrUnexpectedEOF}
 	case errors.Is(err, gzip.ErrChecksum), errors.Is(err, gzip.ErrHeader), errors.As(err, &corrupt):
@@ -281,7 +285,7 @@ func (r *Reader) ReadSlice(dst *volume.Slice) error {
 		// Reading past the data makes the gzip reader verify its checksum and length.
 		var one [1]byte
 		if _, err := io.ReadFull(r.gz, one[:]); err != nil && err != io.EOF {
-			r.err = r.dataError("the end of the compressed stream", err)
+			r.err = r.dataError("the gzip trailer (checksum and length)", err)
 			return r.err
 		}
 	}
