@@ -19,8 +19,8 @@ type CPOptions struct {
 	// Tol·(relative error): the fit has stopped moving. Default 1e-10.
 	Tol float64
 	// Restarts is the number of runs from random factors, in addition to the runs
-	// started from the higher-order SVD and from the unfolding's largest columns.
-	// Negative means none. Default 4.
+	// started from the generalised-eigenvalue solution, the higher-order SVD and the
+	// unfoldings' largest columns. Negative means none. Default 4.
 	Restarts int
 	// Seed seeds the PCG generator (math/rand/v2) of the random starts, so that results
 	// are reproducible. Runs with the same seed give the same result.
@@ -132,10 +132,12 @@ func (c *CPResult) Reconstruct() *Dense {
 // To save work the fit runs on the core of a, compressed by the sequentially truncated
 // HOSVD to its numerical multilinear rank, and the factors are mapped back afterwards
 // (compression first, as Kolda & Bader describe for CANDELINC); this loses nothing,
-// because every rank-one term of a best fit lies in the span of a's unfoldings. Runs
-// start from the leading left singular vectors of the core's unfoldings (the HOSVD
+// because the factors of a best fit lie in the column spaces of a's unfoldings. Runs
+// start from an exact generalised-eigenvalue solution when r is at most two of the
+// core's dimensions (see gevdStart; exact for a tensor of CP rank r with generic
+// factors), from the leading left singular vectors of the core's unfoldings (the HOSVD
 // start), from the unfoldings' largest columns, and from opt.Restarts random factors;
-// the run with the lowest error is kept. A run stops when the relative error changes
+// the run with the lowest error is kept, and an exact run ends the search. A run stops when the relative error changes
 // by no more than opt.Tol relative to itself, falls below 1e-14 (times the sum of the
 // term norms over ‖a‖ when that exceeds 1: the rounding floor of a cancelling sum), or
 // reaches opt.MaxIter sweeps; a run whose term norms sum to more than ten times

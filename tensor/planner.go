@@ -139,7 +139,8 @@ func (a *Analysis) Speedup() float64 {
 // axis of one tap are folded into the others and cost nothing (see Plan.Macs), so a
 // flat k×k kernel that is rank one costs 2k. Analyze returns an error if k is empty,
 // has dimensions that do not match its data, or holds a NaN or an infinity, or if a
-// decomposition fails. The kernel is not modified.
+// decomposition fails. The kernel is not modified. An all-zero kernel is planned
+// direct, with nothing to do.
 func Analyze(k *Dense, opt AnalyzeOptions) (*Analysis, error) {
 	if err := checkKernel(k); err != nil {
 		return nil, err
@@ -254,8 +255,8 @@ func checkKernel(k *Dense) error {
 
 // choose returns the cheapest option within tol that is not degenerate (Direct always
 // is); ties go to the simpler form (Direct, then CP, then Tucker), then to the lower
-// error. With force set it keeps to that
-// form, falling back to its most accurate non-degenerate option.
+// error. With force set it keeps to that form, falling back to its most accurate
+// non-degenerate option.
 func choose(opts []Option, tol float64, force *Form) *Option {
 	var best *Option
 	better := func(o, b *Option) bool {
@@ -338,9 +339,9 @@ func cpPlan(k *Dense, c *CPResult) *Plan {
 }
 
 // tuckerPlan returns the plan of Tucker decomposition t of kernel k (which the plan
-// keeps) in the given order:
-// with XYZ, one branch per x factor column a, each with one leaf per y factor column b
-// whose z taps are Σ_c core(a, b, c)·U⁽³⁾(:, c); with YXZ the roles of x and y swap.
+// keeps) in the given order: with XYZ, one branch per x factor column a, each with one
+// leaf per y factor column b whose z taps are Σ_c core(a, b, c)·U⁽³⁾(:, c); with YXZ
+// the roles of x and y swap.
 func tuckerPlan(k *Dense, t *TuckerDecomposition, order Order) *Plan {
 	r := t.Ranks()
 	p := &Plan{Form: Tucker, Order: order, Kernel: k, Ranks: r}
