@@ -349,6 +349,10 @@ func tuckerPlan(k *Dense, t *TuckerDecomposition, order Order) *Plan {
 	if order == YXZ {
 		first, second = 1, 0
 	}
+	u3 := make([][]float64, r[2])
+	for l := range u3 {
+		u3[l] = mat.Col(nil, l, t.Factors[2])
+	}
 	for a := range r[first] {
 		b := Branch{First: mat.Col(nil, a, t.Factors[first])}
 		for c := range r[second] {
@@ -360,9 +364,7 @@ func tuckerPlan(k *Dense, t *TuckerDecomposition, order Order) *Plan {
 				} else {
 					w = t.Core.At(c, a, l)
 				}
-				for i := range z {
-					z[i] += w * t.Factors[2].At(i, l)
-				}
+				axpy(w, u3[l], z)
 			}
 			b.Leaves = append(b.Leaves, Leaf{Second: mat.Col(nil, c, t.Factors[second]), Z: z})
 		}
@@ -527,18 +529,20 @@ func reconstruct(p *Plan) *Dense {
 				axpy(z, l.Second, m[second*k:second*k+second])
 			}
 		}
+		// Innermost loops run along x, contiguous in out.
 		for k := range d[2] {
-			for s := range second {
-				v := m[s+second*k]
-				if v == 0 {
-					continue
+			if p.Order == XYZ {
+				for s := range second {
+					if v := m[s+second*k]; v != 0 {
+						off := d[0] * (s + d[1]*k)
+						axpy(v, b.First, out.Data[off:off+first])
+					}
 				}
-				for f := range first {
-					w := b.First[f] * v
-					if p.Order == XYZ {
-						out.Data[f+d[0]*(s+d[1]*k)] += w
-					} else {
-						out.Data[s+d[0]*(f+d[1]*k)] += w
+			} else {
+				for f, w := range b.First {
+					if w != 0 {
+						off := d[0] * (f + d[1]*k)
+						axpy(w, m[second*k:second*k+second], out.Data[off:off+second])
 					}
 				}
 			}
