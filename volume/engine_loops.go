@@ -1,0 +1,42 @@
+package volume
+
+// The engine's inner loops. Every pass of the engine is a sequence of these on flat
+// float32 slices: the x pass as shifted views of padded rows, the y pass row-wise, the z
+// pass slice-wise. Each output value receives its taps in a fixed order whatever the
+// block it lies in, so the result does not depend on the number of threads.
+
+// axpyGeneric sets dst[i] += w·src[i] for every i. len(src) ≥ len(dst).
+// It is the plain-Go reference that the assembly variant is checked against.
+func axpyGeneric(dst, src []float32, w float32) {
+	src = src[:len(dst)]
+	i := 0
+	for ; i+4 <= len(dst); i += 4 {
+		d := dst[i : i+4 : i+4]
+		s := src[i : i+4 : i+4]
+		d[0] += w * s[0]
+		d[1] += w * s[1]
+		d[2] += w * s[2]
+		d[3] += w * s[3]
+	}
+	for ; i < len(dst); i++ {
+		dst[i] += w * src[i]
+	}
+}
+
+// addConst sets dst[i] += c for every i.
+func addConst(dst []float32, c float32) {
+	for i := range dst {
+		dst[i] += c
+	}
+}
+
+// sqrAdd sets dst[i] += src[i]² for every i.
+func sqrAdd(dst, src []float32) {
+	src = src[:len(dst)]
+	for i, v := range src {
+		dst[i] += v * v
+	}
+}
+
+// axpy sets dst[i] += w·src[i] for every i. len(src) ≥ len(dst).
+func axpy(dst, src []float32, w float32) { axpyGeneric(dst, src, w) }
