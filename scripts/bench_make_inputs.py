@@ -25,3 +25,18 @@ for n in sizes:
             sl = (1000 + 400 * np.sin(xx / 9.0 + z / 13.0) * np.cos(yy / 11.0)
                   + 50 * rng.standard_normal((n, n))).astype(np.float32)
             tw.write(sl, contiguous=True)
+
+# The tilted point-spread function of the convolve case: 15×15×15 taps, sigmas 1, 1, 3
+# voxels along its own x, y, z axes, turned 30° about y, normalised to sum 1 — a kernel
+# designed in NumPy as a user would. Stored with shape (kz, ky, kx).
+psf = os.path.join(d, "psf15.npy")
+if not os.path.exists(psf):
+    r = np.arange(15) - 7.0
+    z, y, x = np.meshgrid(r, r, r, indexing="ij")
+    a = np.deg2rad(30.0)
+    c, s = np.cos(a), np.sin(a)
+    # Coordinates in the PSF's own frame: rotate the grid by −30° about y.
+    xp = c * x - s * z
+    zp = s * x + c * z
+    k = np.exp(-0.5 * (xp ** 2 / 1.0 + y ** 2 / 1.0 + zp ** 2 / 9.0))
+    np.save(psf, k / k.sum())
