@@ -136,7 +136,7 @@ var kernelMakeCommand = &cli.Command{
 	// which would also make the command look like a parent to permuteArgs).
 	HideHelpCommand: true,
 	Flags: []cli.Flag{kmSigma, kmSigma2, kmOrder, kmTruncate, kmAxis, kmSize, kmRadius, kmAngles, kmSpacing,
-		kmOutput, kmFloat32, kmOverwrite},
+		kmOutput, kmFloat32, kmOverwrite, flagQuiet},
 	Action: kernelMakeAction,
 }
 
@@ -166,8 +166,7 @@ func kernelMakeAction(c *cli.Context) error {
 	if err := writeKernel(out, k, c.Bool(kmFloat32.Name), c.Bool(kmOverwrite.Name)); err != nil {
 		return err
 	}
-	fmt.Fprintf(c.App.ErrWriter, "wrote %s: %s, %d×%d×%d taps (x×y×z), sum %.6g\n",
-		out, what, k.I, k.J, k.K, sumTaps(k))
+	note(c, "wrote %s: %s, %d×%d×%d taps (x×y×z), sum %.6g", out, what, k.I, k.J, k.K, sumTaps(k))
 	return nil
 }
 

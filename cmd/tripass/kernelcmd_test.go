@@ -86,6 +86,9 @@ func TestKernelMakePhysicalUnits(t *testing.T) {
 	if code, _, e := runCLI(t, "kernel", "make", "gaussian", "--sigma", "2", "-o", b); code != 0 {
 		t.Fatal(e)
 	}
+	if code, _, e := runCLI(t, "kernel", "make", "box", "--size", "3", "-o", filepath.Join(dir, "q.txt"), "--quiet"); code != 0 || e != "" {
+		t.Errorf("--quiet: exit %d, stderr %q", code, e)
+	}
 	ka, _ := loadKernel(a)
 	kb, _ := loadKernel(b)
 	if d := denseDiff(ka, kb); d > 1e-15 {
