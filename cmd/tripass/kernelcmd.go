@@ -89,7 +89,7 @@ var kernelKinds = []kernelKind{
 	{"box", "mean over a box of --size voxels", []string{"size"}, makeBox},
 	{"sobel", "3D Sobel derivative along --axis: central difference along it, [1,2,1] across; unnormalised (a unit ramp gives 32)", []string{"axis"}, makeSobel},
 	{"laplace7", "7-point Laplacian stencil (3×3×3)", nil, makeLaplace7},
-	{"log", "Laplacian of Gaussian", []string{"sigma", "truncate", "spacing"}, makeLoG},
+	{"log", "Laplacian of Gaussian; an axis with sigma 0 is neither smoothed nor differentiated", []string{"sigma", "truncate", "spacing"}, makeLoG},
 	{"dog", "difference of Gaussians, G(--sigma) − G(--sigma2)", []string{"sigma", "sigma2", "truncate", "spacing"}, makeDoG},
 	{"ball", "mean over a digital ball of --radius voxels", []string{"radius"}, makeBall},
 	{"oriented-gaussian", "anisotropic Gaussian with --sigma along its own axes, turned by --angles: a model of a tilted point-spread function", []string{"sigma", "angles", "truncate", "spacing"}, makeOriented},
@@ -607,6 +607,8 @@ func kernelInspectAction(c *cli.Context) error {
 		return usageErrorf("--tolerance %g: want a relative error above 0 and below 1", tol)
 	}
 	maxTerms := c.Int(kiMaxTerms.Name)
+	// 64 terms of even a 3-tap kernel cost 576 multiply-adds against at most 27 direct:
+	// more is never a plan, only a long wait.
 	if maxTerms < 0 || maxTerms > 64 {
 		return usageErrorf("--max-terms %d: want 0 to 64 (0: no CP candidates)", maxTerms)
 	}
