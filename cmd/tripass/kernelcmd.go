@@ -607,8 +607,8 @@ func kernelInspectAction(c *cli.Context) error {
 		return usageErrorf("--tolerance %g: want a relative error above 0 and below 1", tol)
 	}
 	maxTerms := c.Int(kiMaxTerms.Name)
-	// 64 terms of even a 3-tap kernel cost 576 multiply-adds against at most 27 direct:
-	// more is never a plan, only a long wait.
+	// Each extra CP term costs another ALS fit with restarts; a kernel that needs more
+	// than 64 terms is served better by its Tucker form, which is always tried.
 	if maxTerms < 0 || maxTerms > 64 {
 		return usageErrorf("--max-terms %d: want 0 to 64 (0: no CP candidates)", maxTerms)
 	}
