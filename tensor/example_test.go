@@ -81,3 +81,61 @@ func ExampleAnalyze_laplacian() {
 	// cp 3 terms: 27 multiply-adds, exact true, degenerate false
 	// chosen: direct 7
 }
+
+// A difference of two Gaussians is two separable terms; CP-ALS finds them exactly.
+func ExampleCPALS() {
+	gauss := func(sigma float64) []float64 {
+		g := make([]float64, 13)
+		sum := 0.0
+		for i := range g {
+			x := float64(i - 6)
+			g[i] = math.Exp(-x * x / (2 * sigma * sigma))
+			sum += g[i]
+		}
+		for i := range g {
+			g[i] /= sum
+		}
+		return g
+	}
+	g1, g2 := gauss(1), gauss(1.6)
+	dog := tensor.Outer(1, g1, g1, g1)
+	dog.AddScaled(-1, tensor.Outer(1, g2, g2, g2))
+	c, err := tensor.CPALS(dog, 2, tensor.CPOptions{})
+	if err != nil {
+		panic(err)
+	}
+	fmt.Printf("2 terms: exact %v, degenerate %v, weight signs %+.0f %+.0f\n",
+		c.RelError < 1e-12, c.Degenerate, math.Copysign(1, c.Weights[0]), math.Copysign(1, c.Weights[1]))
+	// Output:
+	// 2 terms: exact true, degenerate false, weight signs +1 -1
+}
+
+// The sequentially truncated HOSVD keeps, mode by mode, just enough of the spectrum for
+// the requested relative error.
+func ExampleSTHOSVD() {
+	// An anisotropic Gaussian tilted 30° about y: y separates, x and z do not.
+	const n = 11
+	c, s := math.Cos(math.Pi/6), math.Sin(math.Pi/6)
+	k := tensor.New(n, n, n)
+	for z := range n {
+		for y := range n {
+			for x := range n {
+				X, Y, Z := float64(x-n/2), float64(y-n/2), float64(z-n/2)
+				u, w := c*X-s*Z, s*X+c*Z
+				k.Set(x, y, z, math.Exp(-0.5*(u*u+Y*Y+w*w/4)))
+			}
+		}
+	}
+	for _, tol := range []float64{1e-2, 1e-4, 1e-8} {
+		st, err := tensor.STHOSVD(k, tol)
+		if err != nil {
+			panic(err)
+		}
+		e := tensor.Distance(k, st.Reconstruct()) / k.Norm()
+		fmt.Printf("tolerance %.0e: ranks %v, within it %v\n", tol, st.Ranks(), e <= tol)
+	}
+	// Output:
+	// tolerance 1e-02: ranks [5 1 5], within it true
+	// tolerance 1e-04: ranks [8 1 8], within it true
+	// tolerance 1e-08: ranks [11 1 11], within it true
+}
