@@ -1,7 +1,7 @@
 package main
 
 import (
-	"fmt"
+	"io"
 
 	"github.com/urfave/cli/v2"
 )
@@ -30,9 +30,9 @@ func completionAction(c *cli.Context) error {
 	}
 	switch c.Args().First() {
 	case "bash":
-		fmt.Fprint(c.App.Writer, bashCompletion)
+		io.WriteString(c.App.Writer, bashCompletion)
 	case "zsh":
-		fmt.Fprint(c.App.Writer, zshCompletion)
+		io.WriteString(c.App.Writer, zshCompletion)
 	default:
 		return usageErrorf("completion %q: want bash or zsh", c.Args().First())
 	}
@@ -41,7 +41,9 @@ func completionAction(c *cli.Context) error {
 
 // bashCompletion asks tripass for the words that may follow what is typed: with the
 // word under the cursor when it starts with "-" (flags), without it otherwise
-// (commands). When tripass offers nothing, bash completes file names (-o default).
+// (commands). When tripass offers nothing, bash completes file names (-o default);
+// after the command, the help subcommand urfave/cli adds to each command is left out so
+// that file names come.
 const bashCompletion = `# bash completion for tripass (tripass completion bash)
 _tripass_words() {
     local cur=${COMP_WORDS[COMP_CWORD]}
@@ -51,6 +53,10 @@ _tripass_words() {
         offered=$("${COMP_WORDS[0]}" "${typed[@]}" "$cur" --generate-bash-completion 2>/dev/null)
     else
         offered=$("${COMP_WORDS[0]}" "${typed[@]}" --generate-bash-completion 2>/dev/null)
+    fi
+    if (( COMP_CWORD > 1 )); then
+        # Past the command, "help" is no answer: leave the word to file names.
+        offered=$(printf '%s\n' "$offered" | grep -vxE 'help|h')
     fi
     local IFS=$'\n'
     COMPREPLY=($(compgen -W "$offered" -- "$cur"))
@@ -71,6 +77,9 @@ _tripass_words() {
     else
         offered=(${(f)"$(_CLI_ZSH_AUTOCOMPLETE_HACK=1 ${words[1]} ${typed[@]} --generate-bash-completion 2>/dev/null)"})
     fi
+    if (( CURRENT > 2 )); then
+        offered=(${offered:#(help|h):*})
+    fi
     if (( ${#offered} )); then
         _describe -t tripass 'tripass' offered && return
     fi
@@ -82,3 +91,12 @@ else
     compdef _tripass_words tripass
 fi
 `
+
+// completionFlag is the flag urfave/cli answers with the words that may come next.
+const completionFlag = "--generate-bash-completion"
+
+// completing reports whether args ask for completions. Their order must then stay as
+// typed: urfave/cli looks for the flag at the end, and at the word before it.
+func completing(args []string) bool {
+	return len(args) > 1 && args[len(args)-1] == completionFlag
+}

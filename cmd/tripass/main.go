@@ -63,7 +63,10 @@ func main() {
 func run(args []string, stdout, stderr io.Writer) int {
 	app := newApp()
 	app.Writer, app.ErrWriter = stdout, stderr
-	err := app.Run(permuteArgs(app, args))
+	if !completing(args) { // completion scripts need the words as typed (completion.go)
+		args = permuteArgs(app, args)
+	}
+	err := app.Run(args)
 	if err == nil {
 		return ExitOK
 	}
