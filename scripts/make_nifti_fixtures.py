@@ -13,7 +13,7 @@ derives from them, scaling, description and the header offset of the data.
 
 The data are a synthetic phantom of our own: a small porous rock core (a cylinder of
 grains with round pores, in a background of air) with deterministic noise, scaled to
-each data type, with the type's extremes in the first two voxels.
+each data type, with the type's extremes in the first and last voxels.
 """
 
 import gzip
@@ -50,17 +50,18 @@ def phantom(shape, seed):
 
 
 def typed(vol, dtype):
-    """Scale a [0, 1] phantom into dtype, putting the type's extremes in voxels 0 and 1."""
+    """Scale a [0, 1] phantom into dtype, putting the type's extremes in the first and
+    last voxels."""
     dt = np.dtype(dtype)
     flat = vol.reshape(-1, order="F")  # x fastest
     if dt.kind in "iu":
         info = np.iinfo(dt)
         lo, hi = float(info.min), float(info.max)
         out = np.round(lo + flat * (hi - lo)).clip(lo, hi).astype(dt)
-        out[0], out[1] = info.min, info.max
+        out[0], out[-1] = info.min, info.max
     else:
         out = (flat * 4000 - 1000).astype(dt)  # densities in Hounsfield-like units
-        out[0], out[1] = np.finfo(dt).min, np.finfo(dt).max
+        out[0], out[-1] = np.finfo(dt).min, np.finfo(dt).max
     return out.reshape(vol.shape, order="F")
 
 
@@ -144,7 +145,8 @@ def make(case, outdir, seed):
         data = typed(vol, case["dtype"])
         if case.get("special"):
             flat = data.reshape(-1, order="F")
-            flat[2], flat[3], flat[4] = np.nan, -np.inf, -0.0
+            for k, v in zip(range(2, flat.size), (np.nan, -np.inf, -0.0)):
+                flat[k] = v
             data = flat.reshape(shape, order="F")
     hdr = nib.Nifti1Header(endianness=order)
     img = nib.Nifti1Image(data, None, header=hdr)
@@ -219,8 +221,51 @@ def make(case, outdir, seed):
     return entries
 
 
+def random_cases(n, seed):
+    """n random cases for live cross-checks: every data type, byte order, unit and
+    placement code, scaling, extensions, 2D and single-volume 4D shapes."""
+    rng = np.random.default_rng(seed)
+    dtypes = ["u1", "i1", "i2", "u2", "i4", "u4", "f4", "f8"]
+    cases = []
+    for i in range(n):
+        dtype = str(rng.choice(dtypes))
+        shape = (int(rng.integers(1, 14)), int(rng.integers(1, 10)), int(rng.integers(1, 7)))
+        case = dict(name="random%02d_%s" % (i, dtype), dtype=dtype, order=str(rng.choice(["<", ">"])),
+                    spacing=tuple(float(v) for v in rng.uniform(0.05, 4, 3)),
+                    unit=str(rng.choice(list(XYZT))))
+        r = rng.random()
+        if r < 0.15:
+            case["shape"] = shape[:2]
+        elif r < 0.3:
+            case["shape"], case["extra"] = shape, (1,)
+        else:
+            case["shape"] = shape
+        if rng.random() < 0.8:
+            case["qform"] = dict(axis=tuple(float(v) for v in rng.normal(size=3)), degrees=float(rng.uniform(-180, 180)),
+                                 flip_z=bool(rng.random() < 0.5), offset=tuple(float(v) for v in rng.normal(0, 50, 3)),
+                                 code=int(rng.integers(1, 5)))
+        if rng.random() < 0.6:
+            case["sform"] = dict(offset=tuple(float(v) for v in rng.normal(0, 50, 3)), code=int(rng.integers(1, 5)))
+        if dtype[0] in "iu" and rng.random() < 0.3:
+            case["scaled"] = True
+        if dtype[0] == "f" and rng.random() < 0.5:
+            case["special"] = True
+        if rng.random() < 0.2:
+            case["extension"] = b"random extension %d" % i
+        cases.append(case)
+    return cases
+
+
 def main():
-    outdir = sys.argv[1] if len(sys.argv) > 1 else "io/nifti/testdata"
+    import argparse
+
+    ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    ap.add_argument("outdir", nargs="?", default="io/nifti/testdata")
+    ap.add_argument("--random", type=int, default=0, metavar="N",
+                    help="write N random cases instead of the committed fixtures (live cross-checks)")
+    ap.add_argument("--seed", type=int, default=1, help="seed of the random cases")
+    args = ap.parse_args()
+    outdir = args.outdir
     os.makedirs(outdir, exist_ok=True)
     manifest = dict(
         generator="scripts/make_nifti_fixtures.py",
@@ -228,7 +273,8 @@ def main():
         numpy=np.__version__,
         files=[],
     )
-    for i, case in enumerate(CASES):
+    cases = random_cases(args.random, args.seed) if args.random else CASES
+    for i, case in enumerate(cases):
         manifest["files"] += make(case, outdir, seed=1000 + i)
     with open(os.path.join(outdir, "manifest.json"), "w") as f:
         json.dump(manifest, f, indent=1, allow_nan=True)

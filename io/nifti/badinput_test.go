@@ -141,6 +141,7 @@ func TestBadInput(t *testing.T) {
 		{name: "gz: truncated stream", gz: true, post: func(b []byte) []byte { return b[:len(b)/2] }, kind: format, want: "truncated .nii.gz: the compressed data end in"},
 		{name: "gz: missing trailer", gz: true, post: func(b []byte) []byte { return b[:len(b)-8] }, kind: format, want: "truncated .nii.gz: the compressed data end in the gzip trailer"},
 		{name: "gz: bad checksum", gz: true, post: func(b []byte) []byte { b[len(b)-8] ^= 0xff; return b }, kind: format, want: "checksum"},
+		{name: "gz: bad checksum before padding", gz: true, post: func(b []byte) []byte { b[len(b)-8] ^= 0xff; return append(b, make([]byte, 16)...) }, kind: format, want: "checksum"},
 		{name: "gz: corrupt deflate data", gz: true, post: func(b []byte) []byte {
 			for i := 20; i < len(b)-8; i += 7 {
 				b[i] ^= 0x5a
@@ -268,5 +269,25 @@ func TestScalingRules(t *testing.T) {
 			t.Errorf("slope %g inter %g: voxel 0 = %g, want %g", c.slope, c.inter, s.At(0), want)
 		}
 		r.Close()
+	}
+}
+
+// TestGzipPadding reads a .nii.gz with zero bytes after its gzip stream, and one made
+// of two gzip members (RFC 1952 allows a series of members; bgzip writes them).
+func TestGzipPadding(t *testing.T) {
+	valid, err := os.ReadFile(filepath.Join("testdata", "uint16_um_ext.nii"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	dir := t.TempDir()
+	padded := append(gzipped(valid), make([]byte, 64)...)
+	half := len(valid) / 2
+	members := append(gzipped(valid[:half]), gzipped(valid[half:])...)
+	for name, b := range map[string][]byte{"padded.nii.gz": padded, "members.nii.gz": members} {
+		path := filepath.Join(dir, name)
+		os.WriteFile(path, b, 0o644)
+		if err := openAndRead(path); err != nil {
+			t.Errorf("%s: %v", name, err)
+		}
 	}
 }

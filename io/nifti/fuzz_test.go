@@ -24,7 +24,7 @@ func (memFile) Close() error { return nil }
 // bounded by the input's size, which the allocation and deflate bounds guarantee.
 // Seeds: every fixture nibabel wrote (testdata), and testdata/fuzz/FuzzOpen.
 func FuzzOpen(f *testing.F) {
-	for _, e := range readManifest(f) {
+	for _, e := range readManifest(f, "testdata") {
 		b, err := os.ReadFile(filepath.Join("testdata", e.File))
 		if err != nil {
 			f.Fatal(err)

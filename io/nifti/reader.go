@@ -283,8 +283,11 @@ func (r *Reader) ReadSlice(dst *volume.Slice) error {
 	if r.z == h.NZ && r.gz != nil && !r.checked {
 		r.checked = true
 		// Reading past the data makes the gzip reader verify its checksum and length.
+		// It then looks for another gzip member: gzip.ErrHeader there means bytes
+		// after a complete, verified stream (padding), which are ignored as trailing
+		// bytes of a .nii are.
 		var one [1]byte
-		if _, err := io.ReadFull(r.gz, one[:]); err != nil && err != io.EOF {
+		if _, err := io.ReadFull(r.gz, one[:]); err != nil && err != io.EOF && !errors.Is(err, gzip.ErrHeader) {
 			r.err = r.dataError("the gzip trailer (checksum and length)", err)
 			return r.err
 		}

@@ -77,6 +77,10 @@ func Create(path string, h volume.Header, opt WriteOptions) (*Writer, error) {
 		return nil, &UnsupportedError{Path: path, Msg: fmt.Sprintf(
 			"NIfTI-1 holds at most %d voxels along an axis; %d×%d×%d does not fit (write TIFF or raw instead)", maxDim, h.NX, h.NY, h.NZ)}
 	}
+	if sp, _ := spacingInFileUnit(h); math.IsInf(float64(float32(sp[0])), 0) ||
+		math.IsInf(float64(float32(sp[1])), 0) || math.IsInf(float64(float32(sp[2])), 0) {
+		return nil, &UnsupportedError{Path: path, Msg: fmt.Sprintf("spacing %v %s is beyond NIfTI-1's float32 pixdim", h.Spacing, h.Unit)}
+	}
 	o := PlainOrientation(h)
 	if opt.Orientation != nil {
 		o = *opt.Orientation

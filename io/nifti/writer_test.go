@@ -291,6 +291,7 @@ func TestCreateRefuses(t *testing.T) {
 		{"extension", "vol.img", ok, "must end in .nii or .nii.gz"},
 		{"too wide for int16 dims", "wide.nii", volume.Header{NX: 40000, NY: 2, NZ: 2, Type: volume.Uint8}, "at most 32767"},
 		{"invalid header", "bad.nii", volume.Header{NX: 0, NY: 4, NZ: 4, Type: volume.Uint8}, "out of range"},
+		{"spacing beyond float32", "far.nii", volume.Header{NX: 2, NY: 2, NZ: 2, Type: volume.Uint8, Spacing: [3]float64{1e300, 1, 1}, Unit: "mm"}, "beyond NIfTI-1's float32"},
 	}
 	for _, c := range cases {
 		path := filepath.Join(dir, c.path)
