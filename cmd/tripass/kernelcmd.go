@@ -516,8 +516,8 @@ cancel (degenerate) are shown but never chosen.
 --json prints one object: shape [kx,ky,kz], norm, nonzero, tolerance,
 mode_singular_values {"x":[…],"y":[…],"z":[…]} (descending), multilinear_rank
 [rx,ry,rz] (at the tolerance), exact_multilinear_rank, separable, direct_macs,
-options [{form, terms, ranks (tucker), order, relative_error, macs_per_voxel,
-degenerate}], plan (the chosen option, with speedup).
+options [{form, terms, ranks (tucker), order ("xyz" or "yxz"; "xyz" for direct),
+relative_error, macs_per_voxel, degenerate}], plan (the chosen option, with speedup).
 
 --factors FILE writes the chosen plan as JSON: shape [kx,ky,kz], center [cx,cy,cz]
 (the origin tap, counted from 0), form, order, ranks, relative_error, macs_per_voxel,
@@ -557,7 +557,7 @@ type optionJSON struct {
 	Form       string  `json:"form"`
 	Terms      int     `json:"terms"`
 	Ranks      *[3]int `json:"ranks,omitempty"`
-	Order      string  `json:"order,omitempty"`
+	Order      string  `json:"order"`
 	RelError   float64 `json:"relative_error"`
 	ErrorBound float64 `json:"error_bound,omitempty"`
 	Macs       int     `json:"macs_per_voxel"`
@@ -583,9 +583,9 @@ type inspectJSON struct {
 func toOptionJSON(o *tensor.Option) optionJSON {
 	j := optionJSON{Form: o.Form.String(), Terms: o.Terms, RelError: o.RelError, ErrorBound: o.Bound,
 		Macs: o.Macs, Degenerate: o.Degenerate}
-	if o.Form != tensor.Direct {
-		j.Order = o.Order.String()
-	}
+	// Every option has an order, so that readers need no special case; direct, which
+	// has no 1D passes, reports the default "xyz".
+	j.Order = o.Order.String()
 	if o.Form == tensor.Tucker {
 		r := o.Ranks
 		j.Ranks = &r

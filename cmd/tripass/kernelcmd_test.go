@@ -324,7 +324,7 @@ func TestKernelInspectGaussianJSON(t *testing.T) {
 		}
 		for _, o := range opts {
 			o := o.(map[string]any)
-			for _, key := range []string{"form", "terms", "relative_error", "macs_per_voxel"} {
+			for _, key := range []string{"form", "terms", "order", "relative_error", "macs_per_voxel"} {
 				if _, ok := o[key]; !ok {
 					t.Errorf("option %v lacks %s", o, key)
 				}
