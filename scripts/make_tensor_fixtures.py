@@ -5,6 +5,11 @@ python3-numpy 1.24) as an outside reference for the Go tensor package.
 
 Run from the repository root:  /usr/bin/python3 scripts/make_tensor_fixtures.py
 
+With --stdin it instead reads {"cases": [{"name", "shape", "data", "truncations":
+[{"ranks"}]}]} from standard input and writes the same cases with the NumPy values
+filled in to standard output: the live cross-check of tensor/live_test.go
+(TRIPASS_LIVE_NUMPY=1 go test ./tensor -run Live).
+
 Each case holds "shape" [I, J, K], "data" in the Go layout (element (i, j, k) at
 i + I*(j + J*k), i.e. NumPy's Fortran order of an (I, J, K) array), the n-mode singular
 values per mode (numpy.linalg.svd of the mode-n unfolding; the column order of the
@@ -14,6 +19,7 @@ vectors of each unfolding, core = projection, reconstruction by einsum).
 """
 import json
 import os
+import sys
 
 import numpy as np
 
@@ -43,7 +49,20 @@ def case(name, a, truncations):
     }
 
 
+def answer_stdin():
+    req = json.load(sys.stdin)
+    out = []
+    for c in req["cases"]:
+        a = np.array(c["data"], dtype=np.float64).reshape(c["shape"], order="F")
+        out.append(case(c["name"], a, [tuple(t["ranks"]) for t in c.get("truncations", [])]))
+    json.dump({"generator": "scripts/make_tensor_fixtures.py --stdin, NumPy %s" % np.__version__, "cases": out},
+              sys.stdout)
+
+
 def main():
+    if "--stdin" in sys.argv[1:]:
+        answer_stdin()
+        return
     rng = np.random.default_rng(20261202)
     cases = []
     cases.append(case("random 5x4x3", rng.standard_normal((5, 4, 3)), [(3, 2, 2), (1, 1, 1), (4, 3, 2)]))

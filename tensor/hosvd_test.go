@@ -14,17 +14,23 @@ import (
 // numpyFixtures is tensor/testdata/hosvd_numpy.json, made by
 // scripts/make_tensor_fixtures.py.
 type numpyFixtures struct {
-	Generator string
-	Cases     []struct {
-		Name               string
-		Shape              [3]int
-		Data               []float64
-		ModeSingularValues [3][]float64 `json:"mode_singular_values"`
-		Truncations        []struct {
-			Ranks    [3]int
-			RelError float64 `json:"rel_error"`
-		}
-	}
+	Generator string      `json:"generator"`
+	Cases     []numpyCase `json:"cases"`
+}
+
+// numpyCase is one tensor and NumPy's values for it.
+type numpyCase struct {
+	Name               string            `json:"name"`
+	Shape              [3]int            `json:"shape"`
+	Data               []float64         `json:"data"`
+	ModeSingularValues [3][]float64      `json:"mode_singular_values"`
+	Truncations        []numpyTruncation `json:"truncations"`
+}
+
+// numpyTruncation is the relative error of NumPy's truncated HOSVD at Ranks.
+type numpyTruncation struct {
+	Ranks    [3]int  `json:"ranks"`
+	RelError float64 `json:"rel_error"`
 }
 
 func loadNumPyFixtures(t *testing.T) *numpyFixtures {
@@ -50,7 +56,12 @@ func loadNumPyFixtures(t *testing.T) *numpyFixtures {
 // rounding floor (below 1e-14 of the largest, as in a rank-deficient case) only to that
 // floor.
 func TestModeSingularValuesMatchNumPy(t *testing.T) {
-	f := loadNumPyFixtures(t)
+	checkAgainstNumPy(t, loadNumPyFixtures(t))
+}
+
+// checkAgainstNumPy compares the HOSVD of every case with NumPy's values in f.
+func checkAgainstNumPy(t *testing.T, f *numpyFixtures) {
+	t.Helper()
 	for _, c := range f.Cases {
 		t.Run(c.Name, func(t *testing.T) {
 			a := &Dense{I: c.Shape[0], J: c.Shape[1], K: c.Shape[2], Data: c.Data}
