@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"path/filepath"
 	"slices"
 	"strconv"
 	"strings"
@@ -158,6 +159,9 @@ func kernelMakeAction(c *cli.Context) error {
 	out := c.String(kmOutput.Name)
 	if out == "" {
 		return usageErrorf("kernel make needs an output file: -o FILE (.npy or .txt)")
+	}
+	if c.Bool(kmFloat32.Name) && !strings.EqualFold(filepath.Ext(out), ".npy") {
+		return usageErrorf("--float32 applies to .npy output only; %s is text", out)
 	}
 	k, what, err := kind.make(c)
 	if err != nil {

@@ -502,6 +502,7 @@ func TestKernelErrors(t *testing.T) {
 		{[]string{"kernel", "make", "gaussian", "--sigma", "300", "-o", filepath.Join(dir, "g.npy")}, ExitUsage, "limit"},
 		{[]string{"kernel", "make", "gaussian", "--sigma", "1", "--order", "1,0,0", "--axis", "x", "-o", filepath.Join(dir, "g.npy")}, ExitUsage, "--axis does not apply"},
 		{[]string{"kernel", "make", "gaussian", "--sigma", "1", "-o", existing}, ExitUsage, "already exists"},
+		{[]string{"kernel", "make", "laplace7", "--float32", "-o", filepath.Join(dir, "l.txt")}, ExitUsage, "--float32 applies to .npy"},
 		{[]string{"kernel", "inspect"}, ExitUsage, "one kernel FILE"},
 		{[]string{"kernel", "inspect", filepath.Join(dir, "none.npy")}, ExitInput, "none.npy: no such file"},
 		{[]string{"kernel", "inspect", bad}, ExitInput, "bad.npy"},
