@@ -157,7 +157,7 @@ func TestCPALSReproducible(t *testing.T) {
 	}
 	// A random tensor's R-term fit cannot beat the bound from its unfoldings.
 	h, _ := HOSVD(a)
-	if lb := cpLowerBound(h.Values, 3) / a.Norm(); c1.RelError < lb*(1-1e-12) {
+	if lb := cpLowerBound(h.Values, a.Norm(), 3); c1.RelError < lb*(1-1e-12) {
 		t.Errorf("error %g below the lower bound %g", c1.RelError, lb)
 	}
 }

@@ -124,12 +124,12 @@ func STHOSVD(a *Dense, tol float64) (*TuckerDecomposition, error) {
 	if tol < 0 || math.IsNaN(tol) {
 		return nil, fmt.Errorf("tensor: bad tolerance %g", tol)
 	}
-	budget := tol * tol * sq(a.Norm()) / 3
+	norm := a.Norm()
 	return stHOSVD(a, func(_ int, s []float64) int {
-		if tol == 0 {
+		if tol == 0 || norm == 0 {
 			return max(NumericalRank(s), 1)
 		}
-		return rankWithin(s, budget)
+		return rankWithin(s, norm, tol*tol/3)
 	})
 }
 
@@ -162,12 +162,14 @@ func stHOSVD(a *Dense, rank func(mode int, s []float64) int) (*TuckerDecompositi
 	return h, nil
 }
 
-// rankWithin returns the smallest rank r ≥ 1 such that Σ_{i≥r} s[i]² ≤ budget.
-func rankWithin(s []float64, budget float64) int {
+// rankWithin returns the smallest rank r ≥ 1 such that Σ_{i≥r} (s[i]/scale)² ≤ budget.
+// Dividing by scale (the tensor's norm) keeps the squares from overflowing or
+// underflowing for kernels of extreme magnitude.
+func rankWithin(s []float64, scale, budget float64) int {
 	tail := 0.0
 	r := len(s)
-	for r > 1 && tail+sq(s[r-1]) <= budget {
-		tail += sq(s[r-1])
+	for r > 1 && tail+sq(s[r-1]/scale) <= budget {
+		tail += sq(s[r-1] / scale)
 		r--
 	}
 	return r
@@ -180,10 +182,13 @@ func rankWithin(s []float64, budget float64) int {
 // HOSVD at this rank is within tol; this is also the per-mode rule of the sequentially
 // truncated HOSVD (Vannieuwenhoven et al. 2012). Every rank is at least 1.
 func RanksForTolerance(values [3][]float64, norm, tol float64) [3]int {
-	budget := tol * tol * norm * norm / 3
 	var r [3]int
 	for n := range 3 {
-		r[n] = rankWithin(values[n], budget)
+		if norm == 0 {
+			r[n] = 1
+			continue
+		}
+		r[n] = rankWithin(values[n], norm, tol*tol/3)
 	}
 	return r
 }
@@ -208,13 +213,23 @@ func NumericalRank(s []float64) int {
 // the three modes, of the squared n-mode singular values beyond r[n]. The true error
 // ‖A − Â‖ never exceeds it.
 func TruncationBound(values [3][]float64, r [3]int) float64 {
+	// Scaled by the largest value so that the squares neither overflow nor underflow.
+	scale := 0.0
+	for n := range 3 {
+		if len(values[n]) > 0 {
+			scale = math.Max(scale, values[n][0])
+		}
+	}
+	if scale == 0 {
+		return 0
+	}
 	s := 0.0
 	for n := range 3 {
 		for i := r[n]; i < len(values[n]); i++ {
-			s += sq(values[n][i])
+			s += sq(values[n][i] / scale)
 		}
 	}
-	return math.Sqrt(s)
+	return scale * math.Sqrt(s)
 }
 
 // Distance returns the Frobenius norm ‖a − b‖. It panics if the dimensions differ.

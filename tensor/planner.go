@@ -188,7 +188,7 @@ func Analyze(k *Dense, opt AnalyzeOptions) (*Analysis, error) {
 	for r := 1; r <= maxCP; r++ {
 		cpOpt := CPOptions{Restarts: opt.Restarts, Seed: opt.Seed}
 		core := exact
-		if cpLowerBound(h.Values, r)/an.Norm > tol {
+		if cpLowerBound(h.Values, an.Norm, r) > tol {
 			cpOpt.MaxIter, cpOpt.Restarts, cpOpt.HOSVDStartOnly = quickCPIter, -1, true
 			for n := range 3 {
 				core[n] = min(core[n], quickCPRank(r))
@@ -216,9 +216,9 @@ func Analyze(k *Dense, opt AnalyzeOptions) (*Analysis, error) {
 		o.Bound = TruncationBound(h.Values, st.Ranks()) / an.Norm
 		an.Options = append(an.Options, o)
 	}
-	search := newRankSearch(h.Core)
+	search := newRankSearch(h.Core, an.Norm)
 	for _, order := range []Order{XYZ, YXZ} {
-		r, ok := search.cheapest(k.Dims(), order, tol*an.Norm)
+		r, ok := search.cheapest(k.Dims(), order, tol)
 		if !ok || r == st.Ranks() {
 			continue
 		}
@@ -303,16 +303,16 @@ func newOption(k *Dense, norm float64, p *Plan) Option {
 	}
 }
 
-// cpLowerBound returns a lower bound on the error of any r-term CP fit of a tensor with
-// n-mode singular values values: each unfolding of an r-term sum has rank at most r, so
-// by Eckart–Young its error is at least the norm of the discarded singular values of
-// the worst mode.
-func cpLowerBound(values [3][]float64, r int) float64 {
+// cpLowerBound returns a lower bound on the relative error of any r-term CP fit of a
+// tensor of norm norm with n-mode singular values values: each unfolding of an r-term
+// sum has rank at most r, so by Eckart–Young its error is at least the norm of the
+// discarded singular values of the worst mode.
+func cpLowerBound(values [3][]float64, norm float64, r int) float64 {
 	worst := 0.0
 	for n := range 3 {
 		s := 0.0
 		for i := r; i < len(values[n]); i++ {
-			s += sq(values[n][i])
+			s += sq(values[n][i] / norm)
 		}
 		worst = math.Max(worst, s)
 	}
@@ -455,18 +455,20 @@ func tuckerMacs(d [3]int, r [3]int, order Order) int {
 // kept part of every block at once.
 type rankSearch struct {
 	d     [3]int    // core dimensions
-	total float64   // ‖core‖²
-	pre   []float64 // pre[a + (d0+1)·(b + (d1+1)·c)] = Σ core² over the leading a×b×c block
+	total float64   // ‖core/scale‖²
+	pre   []float64 // pre[a + (d0+1)·(b + (d1+1)·c)] = Σ (core/scale)² over the leading a×b×c block
 }
 
-func newRankSearch(core *Dense) *rankSearch {
+// newRankSearch prepares the search on a full HOSVD core, with errors measured relative
+// to scale (the kernel's norm, which keeps the squares in range).
+func newRankSearch(core *Dense, scale float64) *rankSearch {
 	d := core.Dims()
 	s := &rankSearch{d: d, pre: make([]float64, (d[0]+1)*(d[1]+1)*(d[2]+1))}
 	at := func(a, b, c int) int { return a + (d[0]+1)*(b+(d[1]+1)*c) }
 	for c := 1; c <= d[2]; c++ {
 		for b := 1; b <= d[1]; b++ {
 			for a := 1; a <= d[0]; a++ {
-				v := sq(core.At(a-1, b-1, c-1))
+				v := sq(core.At(a-1, b-1, c-1) / scale)
 				s.total += v
 				s.pre[at(a, b, c)] = v +
 					s.pre[at(a-1, b, c)] + s.pre[at(a, b-1, c)] + s.pre[at(a, b, c-1)] -
@@ -478,8 +480,8 @@ func newRankSearch(core *Dense) *rankSearch {
 	return s
 }
 
-// cheapest returns the rank triple of least tuckerMacs whose truncation error is at most
-// maxErr (ties to the smaller error), and whether one exists.
+// cheapest returns the rank triple of least tuckerMacs whose relative truncation error
+// is at most maxErr (ties to the smaller error), and whether one exists.
 func (s *rankSearch) cheapest(kd [3]int, order Order, maxErr float64) ([3]int, bool) {
 	d := s.d
 	limit := sq(maxErr)

@@ -263,10 +263,10 @@ func TestRankSearch(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	s := newRankSearch(h.Core)
+	s := newRankSearch(h.Core, k.Norm())
 	for _, tol := range []float64{1e-1, 1e-3, 1e-6} {
 		for _, order := range []Order{XYZ, YXZ} {
-			r, ok := s.cheapest(k.Dims(), order, tol*k.Norm())
+			r, ok := s.cheapest(k.Dims(), order, tol)
 			if !ok {
 				t.Fatalf("tol %g: nothing found", tol)
 			}
@@ -456,6 +456,33 @@ func TestAnalyzePlantedCP(t *testing.T) {
 		a := analyze(t, k, AnalyzeOptions{})
 		if a.Chosen.Form != CP || a.Chosen.Terms != r || a.Chosen.Macs != r*27 || a.Chosen.RelError > 1e-8 {
 			t.Errorf("R=%d: chosen %v %d terms at %d, error %g", r, a.Chosen.Form, a.Chosen.Terms, a.Chosen.Macs, a.Chosen.RelError)
+		}
+	}
+}
+
+// TestAnalyzeScaleInvariant: scaling a kernel by 1e±200 changes neither its ranks nor
+// the plan chosen, nor any relative error by more than rounding.
+// expected: every quantity the planner compares is relative to ‖K‖ (common practice).
+func TestAnalyzeScaleInvariant(t *testing.T) {
+	k := tiltedGaussian(9, [3]float64{1, 1, 2}, 30)
+	base := analyze(t, k, AnalyzeOptions{Tolerance: 1e-4})
+	for _, s := range []float64{1e200, 1e-200} {
+		ks := k.Clone()
+		for i := range ks.Data {
+			ks.Data[i] *= s
+		}
+		a := analyze(t, ks, AnalyzeOptions{Tolerance: 1e-4})
+		if a.MultilinearRank != base.MultilinearRank || a.ExactRank != base.ExactRank ||
+			a.Chosen.Form != base.Chosen.Form || a.Chosen.Ranks != base.Chosen.Ranks || a.Chosen.Order != base.Chosen.Order ||
+			math.Abs(a.Chosen.RelError-base.Chosen.RelError) > 1e-12 {
+			t.Errorf("scale %g: rank %v/%v chosen %v %v %v error %g; unscaled rank %v chosen %v %v %v error %g", s,
+				a.MultilinearRank, a.ExactRank, a.Chosen.Form, a.Chosen.Ranks, a.Chosen.Order, a.Chosen.RelError,
+				base.MultilinearRank, base.Chosen.Form, base.Chosen.Ranks, base.Chosen.Order, base.Chosen.RelError)
+		}
+		for i, o := range a.Options {
+			if o.Form == Tucker && math.Abs(o.Bound-base.Options[i].Bound) > 1e-12 {
+				t.Errorf("scale %g: bound %g, unscaled %g", s, o.Bound, base.Options[i].Bound)
+			}
 		}
 	}
 }
