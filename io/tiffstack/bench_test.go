@@ -1,0 +1,104 @@
+package tiffstack
+
+import (
+	"fmt"
+	"io"
+	"os"
+	"path/filepath"
+	"testing"
+
+	"github.com/tripass/tripass/volume"
+)
+
+// BenchmarkReadWrite writes and then reads a 512×512×256 uint16 stack (128 MiB) in
+// b.TempDir(), one slice at a time, and reports MB/s of voxel data for each direction,
+// and for a copy (read one file while writing another, as tripass convert does).
+// scripts/bench_io.sh runs it beside cp of the same file (it sets TRIPASS_BENCH_DIR to
+// keep the files). Compressed variants show what LZW and Deflate cost.
+func BenchmarkReadWrite(b *testing.B) {
+	h := volume.Header{NX: 512, NY: 512, NZ: 256, Type: volume.Uint16, Spacing: [3]float64{1, 1, 1}, Unit: "um"}
+	s := volume.NewSlice(h.NX, h.NY, h.Type)
+	// A smooth phantom with mild noise, like a CT slice: compressible, not trivially.
+	for i := 0; i < s.Len(); i++ {
+		x, y := i%h.NX, i/h.NX
+		s.Set(i, float64(1000+3*x+2*y+(x*y*7919)%61))
+	}
+	for _, c := range []struct {
+		name string
+		opt  WriteOptions
+	}{
+		{"none", WriteOptions{}},
+		{"lzw+pred", WriteOptions{Compression: LZW, Predictor: true}},
+		{"deflate+pred", WriteOptions{Compression: Deflate, Predictor: true}},
+	} {
+		dir := os.Getenv("TRIPASS_BENCH_DIR")
+		if dir == "" {
+			dir = b.TempDir()
+		}
+		path := filepath.Join(dir, "bench-"+c.name+".tif")
+		b.Run(fmt.Sprintf("%s/write", c.name), func(b *testing.B) {
+			b.SetBytes(h.Bytes())
+			b.ReportAllocs()
+			for b.Loop() {
+				opt := c.opt
+				opt.Overwrite = true
+				w, err := Create(path, h, opt)
+				if err != nil {
+					b.Fatal(err)
+				}
+				for z := 0; z < h.NZ; z++ {
+					if err := w.WriteSlice(s); err != nil {
+						b.Fatal(err)
+					}
+				}
+				if err := w.Close(); err != nil {
+					b.Fatal(err)
+				}
+			}
+		})
+		b.Run(fmt.Sprintf("%s/read", c.name), func(b *testing.B) {
+			b.SetBytes(h.Bytes())
+			b.ReportAllocs()
+			dst := volume.NewSlice(h.NX, h.NY, h.Type)
+			for b.Loop() {
+				r, err := Open(path)
+				if err != nil {
+					b.Fatal(err)
+				}
+				for {
+					if err := r.ReadSlice(dst); err == io.EOF {
+						break
+					} else if err != nil {
+						b.Fatal(err)
+					}
+				}
+				r.Close()
+			}
+		})
+		if c.opt.Compression != None {
+			continue
+		}
+		b.Run(fmt.Sprintf("%s/copy", c.name), func(b *testing.B) {
+			b.SetBytes(h.Bytes())
+			b.ReportAllocs()
+			out := filepath.Join(dir, "bench-copy.tif")
+			for b.Loop() {
+				r, err := Open(path)
+				if err != nil {
+					b.Fatal(err)
+				}
+				w, err := Create(out, r.Header(), WriteOptions{Overwrite: true})
+				if err != nil {
+					b.Fatal(err)
+				}
+				if _, err := volume.Copy(w, r, h.Type, nil); err != nil {
+					b.Fatal(err)
+				}
+				if err := w.Close(); err != nil {
+					b.Fatal(err)
+				}
+				r.Close()
+			}
+		})
+	}
+}
