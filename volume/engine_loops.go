@@ -37,6 +37,3 @@ func sqrAdd(dst, src []float32) {
 		dst[i] += v * v
 	}
 }
-
-// axpy sets dst[i] += w·src[i] for every i. len(src) ≥ len(dst).
-func axpy(dst, src []float32, w float32) { axpyGeneric(dst, src, w) }
