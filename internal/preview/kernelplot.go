@@ -8,6 +8,7 @@ import (
 	"math"
 	"path/filepath"
 	"sort"
+	"strconv"
 
 	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/plotter"
@@ -325,16 +326,9 @@ func (d decadeTicks) Ticks(lo, hi float64) []plot.Tick {
 	for k := a; k <= b; k++ {
 		t := plot.Tick{Value: math.Pow(10, float64(k))}
 		if (b-k)%step == 0 {
-			switch {
-			case k == 0:
-				t.Label = "1"
-			case k == 1:
-				t.Label = "10"
-			case k == 2:
-				t.Label = "100"
-			case k == 3:
-				t.Label = "1000"
-			default:
+			if k >= 0 && k <= 4 {
+				t.Label = strconv.Itoa(int(t.Value)) // 1 to 10000 read best in full
+			} else {
 				t.Label = fmt.Sprintf("1e%d", k)
 			}
 		}
