@@ -50,6 +50,12 @@ func setUsageHandlers(c *cli.Command) {
 	if c.OnUsageError == nil {
 		c.OnUsageError = usageError
 	}
+	// urfave/cli would give every command a "help" subcommand on its first run, which
+	// makes a leaf command look like a parent the next time (the demo and the tests run
+	// several commands in one process); --help serves leaf commands.
+	if len(c.Subcommands) == 0 {
+		c.HideHelpCommand = true
+	}
 	for _, s := range c.Subcommands {
 		setUsageHandlers(s)
 	}
