@@ -291,3 +291,23 @@ func TestGzipPadding(t *testing.T) {
 		}
 	}
 }
+
+// TestPixdimBeyondDim0 reads a 2D image whose unused pixdim[3] is NaN: nifti1.h gives
+// fields beyond dim[0] no meaning, so it is not an error and the z spacing is unknown.
+func TestPixdimBeyondDim0(t *testing.T) {
+	b, err := os.ReadFile(filepath.Join("testdata", "uint16_2d_um.nii"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	binary.LittleEndian.PutUint32(b[88:], math.Float32bits(float32(math.NaN())))
+	path := filepath.Join(t.TempDir(), "flat.nii")
+	os.WriteFile(path, b, 0o644)
+	r, err := Open(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer r.Close()
+	if h := r.Header(); h.NZ != 1 || h.Spacing != [3]float64{0.5, 0.25, 0} {
+		t.Errorf("header %+v, want one slice with z spacing unknown", h)
+	}
+}

@@ -376,10 +376,15 @@ func (r *rawHeader) parse(path string) (*parsed, error) {
 
 	// Spacing: pixdim[1..3]. nifti1.h asks for positive values; a negative one is taken
 	// by its size (common practice of readers), zero means unknown.
+	// pixdim of an axis beyond dim[0] (the z of a 2D image) means nothing: it is used
+	// when it is a usable number and otherwise left unknown.
 	for i := 0; i < 3; i++ {
 		s := float64(r.pixdim[i+1])
 		if math.IsNaN(s) || math.IsInf(s, 0) {
-			return nil, &FormatError{Path: path, Msg: fmt.Sprintf("pixdim[%d] is %g", i+1, s)}
+			if i < ndim {
+				return nil, &FormatError{Path: path, Msg: fmt.Sprintf("pixdim[%d] is %g", i+1, s)}
+			}
+			s = 0
 		}
 		p.h.Spacing[i] = math.Abs(s)
 	}

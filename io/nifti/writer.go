@@ -2,7 +2,7 @@ package nifti
 
 import (
 	"bufio"
-	"compress/gzip"
+	"compress/flate"
 	"fmt"
 	"io"
 	"math"
@@ -20,7 +20,7 @@ const writeBufSize = 1 << 20
 // gzipLevel is the compression level of .nii.gz output: the fastest, as nibabel
 // writes by default (nibabel.openers.Opener.default_compresslevel = 1, nibabel 5.0).
 // Image data compress little better at higher levels and much more slowly.
-const gzipLevel = gzip.BestSpeed
+const gzipLevel = flate.BestSpeed
 
 // maxDim is the largest size along an axis that NIfTI-1's int16 dim fields can hold.
 const maxDim = math.MaxInt16
@@ -48,8 +48,8 @@ type Writer struct {
 	path   string
 	f      *atomicfile.File
 	bw     *bufio.Writer
-	gz     *gzip.Writer // nil for .nii
-	w      io.Writer    // gz or bw
+	gz     *gzipStream // nil for .nii
+	w      io.Writer   // gz or bw
 	h      volume.Header
 	z      int
 	err    error
@@ -92,13 +92,17 @@ func Create(path string, h volume.Header, opt WriteOptions) (*Writer, error) {
 	w := &Writer{path: path, f: f, bw: bufio.NewWriterSize(f, writeBufSize), h: h}
 	w.w = w.bw
 	if compressed {
-		// A zero modification time and no name keep the output the same for the same
-		// input, as nibabel's DeterministicGzipFile does.
-		w.gz, _ = gzip.NewWriterLevel(w.bw, gzipLevel) // the level is valid
+		// Compressed in parallel, one gzip member; a zero modification time and no
+		// name keep the output the same for the same input, as nibabel's
+		// DeterministicGzipFile does.
+		if w.gz, err = newGzipStream(w.bw, gzipLevel); err != nil {
+			f.Abort()
+			return nil, fmt.Errorf("nifti: %s: %w", path, err)
+		}
 		w.w = w.gz
 	}
 	if _, err := w.w.Write(encodeHeader(h, o, descripField(opt.Description))); err != nil {
-		f.Abort()
+		w.Abort()
 		return nil, fmt.Errorf("nifti: %s: writing the header: %w", path, err)
 	}
 	return w, nil
@@ -153,21 +157,21 @@ func (w *Writer) Close() error {
 	}
 	w.closed = true
 	if w.err != nil {
-		w.f.Abort()
+		w.discard()
 		return w.err
 	}
 	if w.z < w.h.NZ {
-		w.f.Abort()
+		w.discard()
 		return fmt.Errorf("nifti: %s: %d of %d slices written: %w", w.path, w.z, w.h.NZ, volume.ErrShortVolume)
 	}
 	if w.gz != nil {
 		if err := w.gz.Close(); err != nil {
-			w.f.Abort()
-			return fmt.Errorf("nifti: %s: ending the gzip stream: %w", w.path, err)
+			w.discard()
+			return fmt.Errorf("nifti: %s: writing: %w", w.path, err)
 		}
 	}
 	if err := w.bw.Flush(); err != nil {
-		w.f.Abort()
+		w.discard()
 		return fmt.Errorf("nifti: %s: writing: %w", w.path, err)
 	}
 	if err := w.f.Commit(); err != nil {
@@ -181,8 +185,16 @@ func (w *Writer) Close() error {
 // than once; after a successful Close it does nothing.
 func (w *Writer) Abort() error {
 	w.closed = true
-	if err := w.f.Abort(); err != nil {
+	if err := w.discard(); err != nil {
 		return fmt.Errorf("nifti: %s: removing the partial output: %w", w.path, err)
 	}
 	return nil
+}
+
+// discard stops the compressing goroutines and removes the temporary file.
+func (w *Writer) discard() error {
+	if w.gz != nil {
+		w.gz.Abort()
+	}
+	return w.f.Abort()
 }
