@@ -111,7 +111,7 @@ func inputFlags() []cli.Flag {
 }
 
 func outputFlags() []cli.Flag {
-	return []cli.Flag{flagCompress, flagBigTIFF, flagOverwrite}
+	return []cli.Flag{flagCompress, flagBigTIFF, flagOverwrite, flagResume}
 }
 
 // input is an open stack with what the command line said about it.
@@ -247,6 +247,10 @@ func byteOrder(s string) (binary.ByteOrder, error) {
 type outputOptions struct {
 	// Orientation carries a NIfTI input's qform/sform through to a NIfTI output.
 	Orientation *nifti.Orientation
+	// ResumeAt > 0 continues the partial output of an interrupted run after that many
+	// slices, which end at byte ResumeSize of the file (journal.go).
+	ResumeAt   int
+	ResumeSize int64
 }
 
 // createOutput opens a sink at path for a volume described by h, refusing a path that
@@ -276,17 +280,28 @@ func createOutput(c *cli.Context, path string, h volume.Header, opt outputOption
 		default:
 			return nil, usageErrorf("--compress %q: want none, lzw or deflate", c.String(flagCompress.Name))
 		}
-		if k == kindFolder {
-			sink, err = tiffstack.CreateFolder(strings.TrimRight(path, "/"), h, wo)
-		} else {
-			sink, err = tiffstack.Create(path, h, wo)
+		// Outputs are resumable (resume.go in each format package): their partial
+		// files have fixed names that --resume finds again.
+		switch {
+		case k == kindFolder && opt.ResumeAt > 0:
+			sink, err = tiffstack.ResumeFolder(strings.TrimRight(path, "/"), h, wo, opt.ResumeAt)
+		case k == kindFolder:
+			sink, err = tiffstack.CreateFolderResumable(strings.TrimRight(path, "/"), h, wo)
+		case opt.ResumeAt > 0:
+			sink, err = tiffstack.Resume(path, h, wo, opt.ResumeAt, opt.ResumeSize)
+		default:
+			sink, err = tiffstack.CreateResumable(path, h, wo)
 		}
 	case kindRaw:
 		order, oerr := byteOrder(c.String(flagRawEndian.Name))
 		if oerr != nil {
 			return nil, oerr
 		}
-		sink, err = rawstack.Create(path, h, order, overwrite)
+		if opt.ResumeAt > 0 {
+			sink, err = rawstack.Resume(path, h, order, overwrite, opt.ResumeAt)
+		} else {
+			sink, err = rawstack.CreateResumable(path, h, order, overwrite)
+		}
 	case kindNIfTI:
 		sink, err = nifti.Create(path, h, nifti.WriteOptions{Orientation: opt.Orientation, Overwrite: overwrite,
 			Description: "written by tripass " + version})

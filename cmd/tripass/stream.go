@@ -1,6 +1,9 @@
 package main
 
 import (
+	"errors"
+	"fmt"
+
 	"github.com/urfave/cli/v2"
 
 	"github.com/tripass/tripass/tensor"
@@ -26,42 +29,103 @@ type streamJob struct {
 }
 
 // run streams the job's input through its plans (or copies it) into a new output.
+//
+// The output is written under a fixed temporary name beside its target, with a run
+// journal (journal.go) that records from time to time how many slices are durable. On
+// SIGINT or SIGTERM the run stops between two slices, keeps the partial output and
+// ends with ExitInterrupted; --resume continues it, as it continues a run that was
+// killed, from the last slice its journal records.
 func (j *streamJob) run(c *cli.Context) (volume.FilterStats, error) {
 	h := j.in.Header()
 	if j.z0 == 0 && j.z1 == 0 {
 		j.z1 = h.NZ
 	}
-	sink, err := createOutput(c, j.outPath, j.outH, outputOptionsFrom(j.in), j.inPath)
+	ctx, stop := interruptContext()
+	defer stop()
+	var sink volume.Sink
+	var err error
+	var rs *runJournal
+	if rs, err = j.openJournal(c); err == nil {
+		defer rs.release()
+		opt := outputOptionsFrom(j.in)
+		opt.ResumeAt, opt.ResumeSize = rs.jr.Done, rs.jr.Bytes
+		sink, err = createOutput(c, j.outPath, j.outH, opt, j.inPath)
+		if err != nil && rs.jr.Done > 0 {
+			err = fmt.Errorf("cannot resume: %w", err)
+		}
+	}
 	if err != nil {
 		return volume.FilterStats{}, err
+	}
+	w := &checkpointWriter{ctx: ctx, dst: sink}
+	done := 0 // output slices an earlier run made durable
+	if rs != nil {
+		done = rs.jr.Done
+		if o, ok := sink.(*output); ok {
+			w.sink, _ = o.Sink.(resumableSink)
+		}
+		if w.sink != nil {
+			w.jr, w.jpath = rs.jr, rs.path
+			if err := w.record(done, rs.jr.Bytes); err != nil {
+				sink.Abort()
+				return volume.FilterStats{}, err
+			}
+		}
+		if done > 0 {
+			note(c, "%s: resuming after %d of %d slices", j.outPath, done, j.z1-j.z0)
+		}
 	}
 	if j.what != "" {
 		note(c, "%s: %s", j.name, j.what)
 	}
+	src := &cancelSource{input: j.in, ctx: ctx, count: j.plans == nil}
 	p := newProgress(c, j.name, h)
 	p.plan = j.what // for the --log json summary
 	var st volume.FilterStats
-	if j.plans == nil {
-		st.Clamped, err = volume.CopyRange(sink, j.in, j.outH.Type, j.z0, j.z1, p.update)
-		st.Slices = j.z1 - j.z0
-	} else {
+	switch {
+	case j.z0+done >= j.z1:
+		// Every slice was durable; only the commit was missing.
+	case j.plans == nil:
+		st.Clamped, err = volume.CopyRange(w, src, j.outH.Type, j.z0+done, j.z1, func(n int) { p.update(done + n) })
+		st.NaN, st.Inf = src.nan, src.inf
+	default:
 		opt := j.opt
-		opt.Progress = func(done, total int) { p.update(done) }
-		st, err = volume.FilterRange(sink, j.in, j.outH.Type, j.plans, j.combine, opt, j.z0, j.z1)
+		opt.Progress = func(n, total int) { p.update(done + n) }
+		st, err = volume.FilterRange(w, src, j.outH.Type, j.plans, j.combine, opt, j.z0+done, j.z1)
 	}
+	st.Slices = w.written
 	p.done()
 	if err != nil {
+		if errors.Is(err, errInterrupted) && w.sink != nil {
+			n, serr := w.suspend()
+			if serr == nil {
+				return st, &exitError{ExitInterrupted, fmt.Errorf(
+					"interrupted: %d of %d slices of %s are kept in %s; run the same command with --resume to continue",
+					n, j.z1-j.z0, j.outPath, partPath(j.outPath))}
+			}
+			err = fmt.Errorf("interrupted, and the partial output could not be kept: %w", serr)
+		}
 		sink.Abort()
+		rs.discard()
+		if errors.Is(err, errInterrupted) {
+			return st, &exitError{ExitFailure, fmt.Errorf("%s: interrupted; the partial output was removed", j.outPath)}
+		}
 		return st, streamError(j.inPath, j.outPath, err)
 	}
 	if err := sink.Close(); err != nil {
 		sink.Abort()
+		rs.discard()
 		return st, err
 	}
+	rs.discard()
 	o := j.outH
 	note(c, "wrote %s: %d×%d×%d %s", j.outPath, o.NX, o.NY, j.z1-j.z0, o.Type)
 	if st.NaN > 0 || st.Inf > 0 {
-		note(c, "the input holds %d NaN and %d infinite voxels; they spread into their neighbourhoods", st.NaN, st.Inf)
+		if j.plans == nil {
+			note(c, "the input holds %d NaN and %d infinite voxels", st.NaN, st.Inf)
+		} else {
+			note(c, "the input holds %d NaN and %d infinite voxels; they spread into their neighbourhoods", st.NaN, st.Inf)
+		}
 	}
 	if st.Clamped > 0 {
 		note(c, "%d output voxels were outside the %s range and were clamped (use --type float32 to keep them)", st.Clamped, o.Type)

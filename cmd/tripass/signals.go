@@ -1,0 +1,159 @@
+package main
+
+import (
+	"context"
+	"errors"
+	"math"
+	"os"
+	"os/signal"
+	"syscall"
+	"time"
+
+	"github.com/tripass/tripass/volume"
+)
+
+// errInterrupted stops the engine or the copy between two slices when SIGINT or
+// SIGTERM arrives.
+var errInterrupted = errors.New("interrupted")
+
+// interruptContext returns a context that is cancelled by the first SIGINT or SIGTERM.
+// Once it is, the signals get their default behaviour back, so that a second Ctrl-C
+// ends a run that does not stop quickly enough. stop releases the signals.
+func interruptContext() (ctx context.Context, stop func()) {
+	ctx, stop = signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
+	go func() {
+		<-ctx.Done()
+		stop()
+	}()
+	return ctx, stop
+}
+
+// Checkpoints: how often the output is synced and the journal replaced. A checkpoint
+// costs an fsync of what was written since the last one (written anyway) and a small
+// journal write, so it is cheap at this spacing; a kill loses at most this much work.
+var (
+	checkpointInterval = 2 * time.Second
+	checkpointBytes    = int64(16 << 20)
+)
+
+// resumableSink is a sink that can make its slices durable and keep its partial output
+// when a run stops early (the writers of io/rawstack, io/tiffstack and io/nifti).
+type resumableSink interface {
+	volume.Sink
+	// Sync makes every slice written so far durable and returns how many there are and
+	// the output's length.
+	Sync() (slices int, size int64, err error)
+	// Suspend syncs, closes and keeps the partial output.
+	Suspend() (slices int, size int64, err error)
+}
+
+// checkpointWriter passes slices on to the output, refuses them once the run is
+// interrupted, and from time to time syncs the output and records in the journal how
+// many slices are durable.
+type checkpointWriter struct {
+	ctx     context.Context
+	dst     volume.SliceWriter // the output, with its error messages
+	sink    resumableSink      // the same output, nil if it cannot be resumed
+	jr      *journal
+	jpath   string
+	written int // slices written by this run
+	last    time.Time
+	pending int64 // bytes written since the last checkpoint
+	// every, if positive, forces a checkpoint after that many slices (formats whose
+	// durable points must fall on fixed slices, .nii.gz).
+	every int
+}
+
+func (w *checkpointWriter) WriteSlice(s *volume.Slice) error {
+	if w.ctx.Err() != nil {
+		return errInterrupted
+	}
+	if err := w.dst.WriteSlice(s); err != nil {
+		return err
+	}
+	w.written++
+	w.pending += int64(len(s.Data))
+	if w.sink == nil {
+		return nil
+	}
+	if w.every > 0 {
+		if (w.jr.Done+w.written)%w.every == 0 { // counted from the start of the output
+			return w.checkpoint()
+		}
+		return nil
+	}
+	if w.pending >= checkpointBytes || time.Since(w.last) >= checkpointInterval {
+		return w.checkpoint()
+	}
+	return nil
+}
+
+// checkpoint syncs the output, then records what is durable in the journal.
+func (w *checkpointWriter) checkpoint() error {
+	n, size, err := w.sink.Sync()
+	if err != nil {
+		return err
+	}
+	return w.record(n, size)
+}
+
+func (w *checkpointWriter) record(n int, size int64) error {
+	jr := *w.jr
+	jr.Done, jr.Bytes = n, size
+	if err := jr.write(w.jpath); err != nil {
+		return ioError(err)
+	}
+	w.last, w.pending = time.Now(), 0
+	return nil
+}
+
+// suspend keeps the partial output after an interruption and records its last durable
+// slice. It returns how many slices of the output a resumed run finds done.
+func (w *checkpointWriter) suspend() (int, error) {
+	n, size, err := w.sink.Suspend()
+	if err != nil {
+		return 0, err
+	}
+	if w.every > 0 {
+		// Only the fixed points are places to continue from; the journal already
+		// names the last one passed.
+		return w.lastFixed(), nil
+	}
+	return n, w.record(n, size)
+}
+
+// lastFixed is the number of slices done at the last fixed checkpoint.
+func (w *checkpointWriter) lastFixed() int {
+	total := w.jr.Done + w.written
+	return total - total%w.every
+}
+
+// cancelSource stops reading once the run is interrupted, and counts NaN and infinite
+// samples for the copy path (the engine counts them itself when it filters).
+type cancelSource struct {
+	*input
+	ctx      context.Context
+	count    bool
+	nan, inf int64
+}
+
+func (s *cancelSource) ReadSlice(dst *volume.Slice) error {
+	if s.ctx.Err() != nil {
+		return errInterrupted
+	}
+	if err := s.input.ReadSlice(dst); err != nil {
+		return err
+	}
+	if s.count && dst.Type.IsFloat() {
+		n := dst.Len()
+		for i := 0; i < n; i++ {
+			v := dst.At(i)
+			if v != v {
+				s.nan++
+			} else if math.IsInf(v, 0) {
+				s.inf++
+			}
+		}
+	}
+	return nil
+}
