@@ -25,7 +25,7 @@ Examples:
 	Flags: append(append([]cli.Flag{
 		&cli.StringFlag{Name: "type", Usage: "sample type of OUT (uint8, uint16, int16, uint32, int32, float32, float64); default: IN's"},
 		flagQuiet, flagLog,
-	}, inputFlags()...), outputFlags()...),
+	}, inputFlags()...), append(outputFlags(), shardFlags()...)...),
 	Action: convertAction,
 }
 
@@ -48,6 +48,9 @@ func convertAction(c *cli.Context) error {
 		}
 	}
 	job := &streamJob{name: "convert", inPath: inPath, outPath: outPath, in: in, outH: h}
+	if skip, err := job.setShard(c); skip || err != nil {
+		return err
+	}
 	_, err = job.run(c)
 	return err
 }

@@ -40,7 +40,8 @@ var (
 func filterFlags(own ...cli.Flag) []cli.Flag {
 	fl := append(own, flagEdge, flagFill, flagThreads, flagOutType, flagQuiet, flagLog)
 	fl = append(fl, inputFlags()...)
-	return append(fl, outputFlags()...)
+	fl = append(fl, outputFlags()...)
+	return append(fl, shardFlags()...)
 }
 
 // filterJob is one filtering run: the plans whose outputs are combined voxel by voxel.
@@ -89,6 +90,9 @@ func runFilter(c *cli.Context, name string, build func(c *cli.Context, h volume.
 			Fill:    c.Float64(flagFill.Name),
 			Threads: c.Int(flagThreads.Name),
 		},
+	}
+	if skip, err := job.setShard(c); skip || err != nil {
+		return err
 	}
 	_, err = job.run(c)
 	return err

@@ -26,6 +26,9 @@ type streamJob struct {
 	// z0, z1 is the range of output slices this run computes; run sets the whole stack
 	// when both are zero.
 	z0, z1 int
+	// shard, if not nil, makes this run one task of a job split across a scheduler
+	// (shard.go): its sink is the task's part file or its slice files.
+	shard *shardSpec
 }
 
 // run streams the job's input through its plans (or copies it) into a new output.
@@ -45,7 +48,9 @@ func (j *streamJob) run(c *cli.Context) (volume.FilterStats, error) {
 	var sink volume.Sink
 	var err error
 	var rs *runJournal
-	if rs, err = j.openJournal(c); err == nil {
+	if j.shard != nil {
+		sink, err = j.shard.create(c, j)
+	} else if rs, err = j.openJournal(c); err == nil {
 		defer rs.release()
 		opt := outputOptionsFrom(j.in)
 		opt.ResumeAt, opt.ResumeSize = rs.jr.Done, rs.jr.Bytes
