@@ -11,6 +11,7 @@ import (
 	"path/filepath"
 	"runtime"
 	"strings"
+	"sync"
 	"testing"
 	"time"
 
@@ -47,11 +48,17 @@ func all(ms ...mutation) mutation {
 	}
 }
 
+// gzipWriters reuses compressors: the fuzz target compresses every input.
+var gzipWriters = sync.Pool{New: func() any { zw, _ := gzip.NewWriterLevel(nil, gzip.BestSpeed); return zw }}
+
+// gzipped compresses b with the standard library's compress/gzip.
 func gzipped(b []byte) []byte {
 	var buf bytes.Buffer
-	zw := gzip.NewWriter(&buf)
+	zw := gzipWriters.Get().(*gzip.Writer)
+	zw.Reset(&buf)
 	zw.Write(b)
 	zw.Close()
+	gzipWriters.Put(zw)
 	return buf.Bytes()
 }
 

@@ -7,7 +7,9 @@
 // through compress/gzip, never inflated whole into memory; seeking in it decompresses
 // up to the slice sought, while a .nii seeks directly. Create returns a Writer, a
 // volume.Sink that writes a little-endian .nii, or streams a .nii.gz through gzip,
-// under a temporary name and renames it on Close.
+// // under a temporary name and renames it on Close. The .nii.gz output is compressed on
+// every core, in independent chunks joined into a single gzip member, so it stays a
+// plain gzip file that any reader takes.
 //
 // What tripass takes from the header:
 //

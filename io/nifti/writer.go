@@ -41,7 +41,8 @@ type WriteOptions struct {
 
 // Writer writes a NIfTI-1 volume slice by slice: a little-endian single-file image
 // with the data right after the header (vox_offset 352, no extensions), gzip-compressed
-// as it goes when the name ends in .nii.gz. It implements volume.Sink: the file is
+// as it goes when the name ends in .nii.gz (in parallel, one gzip member; see
+// gzipStream). It implements volume.Sink: the file is
 // written under a temporary name beside the target and renamed to the target only by a
 // successful Close after all NZ slices. A Writer is not safe for concurrent use.
 type Writer struct {
