@@ -265,12 +265,12 @@ type engine struct {
 	inRing          []*inBuf // direct plans' inputs per slot
 	seeker          SliceSeeker
 
-	g       []float32   // XYZ first-pass result
-	chunk   [][]float32 // per worker: YXZ first-pass result of one block
+	g       []float32     // XYZ first-pass result
+	chunk   [][]float32   // per worker: YXZ first-pass result of one block
 	acc     [][][]float32 // per worker and group member: one plan's output block (magnitude)
 	dsts    [][][]float32 // per worker: where each group member's plan output goes
-	dtmp    [][]float32 // per worker: one kernel row's sum (direct plans)
-	dacc    [][]float64 // per worker: a direct plan's output block
+	dtmp    [][]float32   // per worker: one kernel row's sum (direct plans)
+	dacc    [][]float64   // per worker: a direct plan's output block
 	threads int
 	bytes   int64
 
