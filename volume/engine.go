@@ -913,10 +913,13 @@ func (e *engine) decode(raw *Slice, b *inBuf) {
 		row.ToFloat32(vals)
 		if isFloat {
 			for _, v := range vals {
-				if v != v {
-					b.nan++
-				} else if v > math.MaxFloat32 || v < -math.MaxFloat32 {
-					b.inf++
+				// NaN and ±Inf are the values whose exponent bits are all ones.
+				if math.Float32bits(v)&0x7f800000 == 0x7f800000 {
+					if v != v {
+						b.nan++
+					} else {
+						b.inf++
+					}
 				}
 			}
 		}
