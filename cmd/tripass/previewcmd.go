@@ -41,14 +41,15 @@ Examples:
    tripass preview tissue.tif nuclei.png --at 300,250,40 --percentiles 1,99.9 --width 600
    tripass preview stack.tif top.png --sections xy --at 0,0,0`,
 	Flags: append([]cli.Flag{
-		&cli.StringFlag{Name: "at", Category: "Preview", Usage: "the voxel `X,Y,Z` the sections pass through, counted from 0 (default: the centre); " +
-			"with a unit (e.g. 600,600,400um) a physical position from the first voxel's centre"},
+		&cli.StringFlag{Name: "at", Category: "Preview", DefaultText: "the centre voxel",
+			Usage: "the voxel `X,Y,Z` the sections pass through, counted from 0; " +
+				"with a unit (e.g. 600,600,400um) a physical position from the first voxel's centre"},
 		&cli.StringFlag{Name: "percentiles", Category: "Preview", Value: "0.5,99.5",
 			Usage: "`LOW,HIGH` percentiles (0 to 100) of the sections' values drawn black and white"},
 		&cli.StringFlag{Name: "compare", Category: "Preview", Usage: "draw the same sections of stack `OTHER` beside STACK's (before | after)"},
 		&cli.BoolFlag{Name: "own-contrast", Category: "Preview", Usage: "with --compare, give OTHER grey levels from its own percentiles instead of STACK's"},
-		&cli.IntFlag{Name: "width", Category: "Preview", Usage: "width in `PIXELS` of each stack's column of sections " +
-			"(default: one pixel per finest voxel spacing, kept between 256 and 768)"},
+		&cli.IntFlag{Name: "width", Category: "Preview", DefaultText: "one pixel per finest voxel spacing, 256 to 768",
+			Usage: "width in `PIXELS` of each stack's column of sections"},
 		&cli.StringFlag{Name: "sections", Category: "Preview", Value: "xy,xz,yz", Usage: "which `SECTIONS` to draw, top to bottom: any of xy, xz, yz"},
 		flagOverwrite,
 		flagQuiet,

@@ -30,10 +30,9 @@ var flagLog = &cli.StringFlag{
 	Name:     "log",
 	Category: "Messages",
 	Value:    "text",
-	Usage: "`FORMAT` of progress on stderr: text (a bar with slices, MB/s and time left, " +
-		"shown only on a terminal) or json (JSON Lines for batch systems: progress at most " +
-		"4 times a second and a summary with voxels, seconds, peak memory and plan; written " +
-		"in pipes and with --quiet too)",
+	Usage: "progress on stderr as `FORMAT`: text (a bar with slices, MB/s and time left, on a " +
+		"terminal only) or json (JSON Lines for batch logs: a few progress lines a second and " +
+		"a summary with voxels, seconds, peak memory and plan; also in pipes and with --quiet)",
 	Action: func(c *cli.Context, v string) error {
 		if _, err := parseLogFormat(v); err != nil {
 			return usageErrorf("--log: %v", err)
