@@ -8,20 +8,75 @@ import (
 	"fmt"
 	"io"
 	"math/bits"
+	"runtime"
+	"sync"
+	"sync/atomic"
 
 	"golang.org/x/image/tiff/lzw"
 )
 
 // decoder holds the scratch buffers of a reader, allocated once and reused for every
 // strip, tile and page, so that streaming a stack allocates nothing per slice (except
-// the LZW decoder's state, which x/image cannot reset).
+// the LZW decoder's state, which x/image cannot reset). Compressed strips and tiles of
+// a large page are decoded by GOMAXPROCS workers, each with its own chunkDecoder.
 type decoder struct {
 	offs, counts []uint64
-	comp         []byte // compressed bytes of one strip or tile
-	tile         []byte // one decoded tile
-	row          []byte // one row, for the floating-point predictor
-	br           bytes.Reader
-	zr           io.ReadCloser // zlib reader, reset for each strip
+	workers      []*chunkDecoder
+}
+
+// chunkDecoder is the scratch of one worker.
+type chunkDecoder struct {
+	comp []byte // compressed bytes of one strip or tile
+	tile []byte // one decoded tile
+	row  []byte // one row, for the floating-point predictor
+	br   bytes.Reader
+	zr   io.ReadCloser // zlib reader, reset for each strip
+}
+
+// parallelMin is the page size from which compressed chunks are decoded in parallel
+// (a variable so that tests can send small fixtures down the parallel path).
+var parallelMin = 512 << 10
+
+// forChunks calls fn for chunks 0..n-1 on nw workers and returns the error of the
+// lowest-numbered chunk that failed.
+func (d *decoder) forChunks(n, nw int, fn func(cd *chunkDecoder, i int) error) error {
+	nw = max(1, min(nw, n))
+	for len(d.workers) < nw {
+		d.workers = append(d.workers, new(chunkDecoder))
+	}
+	if nw == 1 {
+		for i := 0; i < n; i++ {
+			if err := fn(d.workers[0], i); err != nil {
+				return err
+			}
+		}
+		return nil
+	}
+	var (
+		next   atomic.Int64
+		wg     sync.WaitGroup
+		mu     sync.Mutex
+		first  = n
+		errOut error
+	)
+	for _, cd := range d.workers[:nw] {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for i := int(next.Add(1)) - 1; i < n; i = int(next.Add(1)) - 1 {
+				if err := fn(cd, i); err != nil {
+					mu.Lock()
+					if i < first {
+						first, errOut = i, err
+					}
+					mu.Unlock()
+					return
+				}
+			}
+		}()
+	}
+	wg.Wait()
+	return errOut
 }
 
 // maxRatio bounds how many decoded bytes one stored byte can yield, to reject pages
@@ -100,40 +155,46 @@ func (d *decoder) decodePage(tf *tiffFile, p *page, dst []byte) error {
 	}
 	bs := p.typ.Size()
 	swap := tf.order == binary.BigEndian && bs > 1
+	nw := 1
+	if p.compression != cNone && len(dst) >= parallelMin {
+		nw = runtime.GOMAXPROCS(0)
+	}
 	if !p.tiled {
 		rowBytes := p.width * bs
-		for i := 0; i < p.n; {
-			lo := i * p.rowsPerStrip * rowBytes
-			nb := p.chunkBytes(i)
-			if p.compression == cNone {
-				// Read runs of strips that follow each other in the file in one call,
-				// straight into dst.
-				j, end, hi := i+1, offs[i]+uint64(nb), lo+nb
-				for j < p.n && offs[j] == end {
-					m := p.chunkBytes(j)
-					end, hi, j = end+uint64(m), hi+m, j+1
-				}
-				if err := tf.readAt(dst[lo:hi], offs[i]); err != nil {
+		if p.compression != cNone {
+			return d.forChunks(p.n, nw, func(cd *chunkDecoder, i int) error {
+				lo := i * p.rowsPerStrip * rowBytes
+				if err := cd.decodeChunk(tf, p, dst[lo:lo+p.chunkBytes(i)], offs[i], counts[i], p.width); err != nil {
 					return within(fmt.Sprintf("strip %d", i), err)
 				}
-				if swap {
-					swapBytes(dst[lo:hi], bs)
-				}
-				i = j
-				continue
+				return nil
+			})
+		}
+		for i := 0; i < p.n; {
+			// Read runs of strips that follow each other in the file in one call,
+			// straight into dst.
+			lo := i * p.rowsPerStrip * rowBytes
+			nb := p.chunkBytes(i)
+			j, end, hi := i+1, offs[i]+uint64(nb), lo+nb
+			for j < p.n && offs[j] == end {
+				m := p.chunkBytes(j)
+				end, hi, j = end+uint64(m), hi+m, j+1
 			}
-			if err := d.decodeChunk(tf, p, dst[lo:lo+nb], offs[i], counts[i], p.width); err != nil {
+			if err := tf.readAt(dst[lo:hi], offs[i]); err != nil {
 				return within(fmt.Sprintf("strip %d", i), err)
 			}
-			i++
+			if swap {
+				swapBytes(dst[lo:hi], bs)
+			}
+			i = j
 		}
 		return nil
 	}
 	tb := p.tileW * p.tileH * bs
-	d.tile = grow(d.tile, tb)
-	tile := d.tile
 	across := (p.width + p.tileW - 1) / p.tileW
-	for i := 0; i < p.n; i++ {
+	return d.forChunks(p.n, nw, func(cd *chunkDecoder, i int) error {
+		cd.tile = grow(cd.tile, tb)
+		tile := cd.tile
 		if p.compression == cNone {
 			if err := tf.readAt(tile, offs[i]); err != nil {
 				return within(fmt.Sprintf("tile %d", i), err)
@@ -141,7 +202,7 @@ func (d *decoder) decodePage(tf *tiffFile, p *page, dst []byte) error {
 			if swap {
 				swapBytes(tile, bs)
 			}
-		} else if err := d.decodeChunk(tf, p, tile, offs[i], counts[i], p.tileW); err != nil {
+		} else if err := cd.decodeChunk(tf, p, tile, offs[i], counts[i], p.tileW); err != nil {
 			return within(fmt.Sprintf("tile %d", i), err)
 		}
 		x0, y0 := (i%across)*p.tileW, (i/across)*p.tileH
@@ -150,13 +211,13 @@ func (d *decoder) decodePage(tf *tiffFile, p *page, dst []byte) error {
 			o := ((y0+r)*p.width + x0) * bs
 			copy(dst[o:o+cw], tile[r*p.tileW*bs:])
 		}
-	}
-	return nil
+		return nil
+	})
 }
 
 // decodeChunk decompresses one strip or tile into out, undoes its predictor and leaves
 // little-endian samples. rowLen is the number of samples in one of its rows.
-func (d *decoder) decodeChunk(tf *tiffFile, p *page, out []byte, off, cnt uint64, rowLen int) error {
+func (d *chunkDecoder) decodeChunk(tf *tiffFile, p *page, out []byte, off, cnt uint64, rowLen int) error {
 	d.comp = grow(d.comp, int(cnt))
 	src := d.comp
 	if err := tf.readAt(src, off); err != nil {

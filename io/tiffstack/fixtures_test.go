@@ -85,6 +85,14 @@ func relClose(a, b, tol float64) bool {
 // bit with the voxels NumPy wrote beside it, and the header and layout with what
 // tifffile reports of the same file.
 func TestFixtures(t *testing.T) {
+	t.Run("serial", testFixtures)
+	// The same files with every compressed page decoded by parallel workers.
+	defer func(v int) { parallelMin = v }(parallelMin)
+	parallelMin = 0
+	t.Run("parallel", testFixtures)
+}
+
+func testFixtures(t *testing.T) {
 	m := loadManifest(t)
 	for _, f := range m.Fixtures {
 		t.Run(f.File, func(t *testing.T) {

@@ -159,6 +159,34 @@ func TestRoundTrip(t *testing.T) {
 	}
 }
 
+// TestLargePages round-trips pages of several strips each, which the writer compresses
+// and the reader decodes on parallel workers. Expected: the bytes written.
+func TestLargePages(t *testing.T) {
+	for _, typ := range []volume.SampleType{volume.Uint8, volume.Uint16, volume.Float32} {
+		for _, comp := range []Compression{None, LZW, Deflate} {
+			t.Run(fmt.Sprintf("%s/%s", typ, comp), func(t *testing.T) {
+				h := volume.Header{NX: 1031, NY: 517, NZ: 3, Type: typ}
+				data := makeStack(h)
+				path := filepath.Join(t.TempDir(), "large.tif")
+				w, err := Create(path, h, WriteOptions{Compression: comp, Predictor: comp != None})
+				if err != nil {
+					t.Fatal(err)
+				}
+				writeStack(t, w, data)
+				r, err := Open(path)
+				if err != nil {
+					t.Fatal(err)
+				}
+				defer r.Close()
+				if typ.Size() > 1 && r.Info().RowsPerStrip >= h.NY {
+					t.Errorf("one strip of %d rows for a %d-byte page", r.Info().RowsPerStrip, h.SliceBytes())
+				}
+				checkStack(t, r, data)
+			})
+		}
+	}
+}
+
 // TestShortVolume checks that closing a sink that got fewer slices than declared
 // fails with volume.ErrShortVolume and leaves nothing at the target.
 func TestShortVolume(t *testing.T) {
