@@ -179,14 +179,14 @@ def make(case, outdir, seed):
         # into the data object and its vox_offset reset).
         h = nib.Nifti1Header.from_fileobj(io.BytesIO(raw_bytes))
         slope, inter = h.get_slope_inter()
-        if "reject" not in case:
-            if slope is None or (slope == 1 and inter == 0):
-                values = np.asanyarray(back.dataobj)  # the stored values, in their type
-            else:
-                values = back.get_fdata(dtype=np.float64)  # nibabel applies slope and inter
-            exp = values.astype(values.dtype.newbyteorder("<")).reshape(-1, order="F")
-            exp_name = case["name"] + ".expected.raw"
-            exp.tofile(os.path.join(outdir, exp_name))
+        if slope is None or (slope == 1 and inter == 0):
+            values = np.asanyarray(back.dataobj)  # the stored values, in their type
+        else:
+            values = back.get_fdata(dtype=np.float64)  # nibabel applies slope and inter
+        # x fastest, then y, z and (for a series) volume: each volume is one block.
+        exp = values.astype(values.dtype.newbyteorder("<")).reshape(-1, order="F")
+        exp_name = case["name"] + ".expected.raw"
+        exp.tofile(os.path.join(outdir, exp_name))
         entry = dict(
             file=os.path.basename(path),
             shape=[int(v) for v in back.shape],
@@ -212,11 +212,11 @@ def make(case, outdir, seed):
             descrip=h["descrip"].item().decode(),
             vox_offset=int(h["vox_offset"]),
         )
+        entry["volumes"] = int(np.prod(back.shape[3:]))
         if "reject" in case:
-            entry["reject"] = case["reject"]
-        else:
-            entry["expected"] = exp_name
-            entry["expected_dtype"] = exp.dtype.str
+            entry["reject"] = case["reject"]  # Open refuses it; OpenVolume reads each volume
+        entry["expected"] = exp_name
+        entry["expected_dtype"] = exp.dtype.str
         entries.append(entry)
     return entries
 
@@ -238,6 +238,8 @@ def random_cases(n, seed):
             case["shape"] = shape[:2]
         elif r < 0.3:
             case["shape"], case["extra"] = shape, (1,)
+        elif r < 0.4:  # a short series: Open refuses it, OpenVolume reads each volume
+            case["shape"], case["extra"], case["reject"] = shape, (int(rng.integers(2, 4)),), "4D"
         else:
             case["shape"] = shape
         if rng.random() < 0.8:

@@ -318,3 +318,37 @@ func TestPixdimBeyondDim0(t *testing.T) {
 		t.Errorf("header %+v, want one slice with z spacing unknown", h)
 	}
 }
+
+// TestOpenVolumeBad: a series too large for the bound on voxels, a volume past the
+// last and a negative volume are refused at once.
+func TestOpenVolumeBad(t *testing.T) {
+	valid, err := os.ReadFile(filepath.Join("testdata", "int16_4d3_mm.nii"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	dir := t.TempDir()
+	huge := all(set16(42, 4096), set16(44, 4096), set16(46, 64), set16(48, 32767))(bytes.Clone(valid))
+	hugePath := filepath.Join(dir, "huge.nii")
+	os.WriteFile(hugePath, huge, 0o644)
+	okPath := filepath.Join(dir, "ok.nii")
+	os.WriteFile(okPath, valid, 0o644)
+	for _, c := range []struct {
+		path string
+		vol  int
+		want string
+	}{
+		{hugePath, 0, "32767 volumes of 4096×4096×64 voxels exceed 2^40"},
+		{okPath, 3, "volume 3 asked for, the file has 3"},
+		{okPath, -1, "numbered from 0"},
+	} {
+		r, err := OpenVolume(c.path, c.vol)
+		if err == nil {
+			r.Close()
+			t.Errorf("%s volume %d: accepted", filepath.Base(c.path), c.vol)
+			continue
+		}
+		if !strings.Contains(err.Error(), c.want) || !strings.HasPrefix(err.Error(), "nifti: "+c.path) {
+			t.Errorf("%s volume %d: %v, want %q", filepath.Base(c.path), c.vol, err, c.want)
+		}
+	}
+}

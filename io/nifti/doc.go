@@ -14,9 +14,10 @@
 // What tripass takes from the header:
 //
 //   - dim: NX, NY, NZ = dim[1..3] (1 for axes beyond dim[0]). tripass filters 3D
-//     volumes: a header with more than one volume (dim[0] ≥ 4 and dim[4..] > 1, a time
-//     series) is refused with an UnsupportedError saying so; split the series first.
-//     dim[4] = 1 is a 3D volume.
+//     volumes: Open refuses a file with more than one volume (dim[0] ≥ 4 and
+//     dim[4..] > 1, a time series) with an UnsupportedError that says so, and
+//     OpenVolume reads any one volume of such a series as a 3D volume, so that a
+//     caller can process the series volume by volume. dim[4] = 1 is a 3D volume.
 //   - datatype and bitpix, which must agree: uint8, int16, uint16, int32, uint32,
 //     float32 and float64 are delivered as the sample type of the same name; int8,
 //     which tripass has no sample type for, is delivered as int16 (exactly). Complex,

@@ -4,6 +4,7 @@ import (
 	"encoding/binary"
 	"encoding/json"
 	"errors"
+	"fmt"
 	"io"
 	"math"
 	"os"
@@ -44,6 +45,7 @@ type manifestEntry struct {
 	Expected      string        `json:"expected"`
 	ExpectedDtype string        `json:"expected_dtype"`
 	Reject        string        `json:"reject"`
+	Volumes       int           `json:"volumes"`
 }
 
 // jsonFloat reads Python's json output, which spells NaN as the bare word NaN.
@@ -189,18 +191,43 @@ func TestReadNibabelFixtures(t *testing.T) {
 // nibabel recorded in the manifest.
 func checkFixture(t *testing.T, dir string, e manifestEntry) {
 	path := filepath.Join(dir, e.File)
-	r, err := Open(path)
+	values := expectedValues(t, dir, e)
 	if e.Reject != "" {
+		_, err := Open(path)
 		var ue *UnsupportedError
-		if !errors.As(err, &ue) || !strings.Contains(err.Error(), "4D NIfTI (3 volumes) not supported: tripass filters 3D volumes; split the series first") {
+		want := fmt.Sprintf("4D NIfTI (%d volumes) not supported: tripass filters 3D volumes; split the series first", e.Volumes)
+		if !errors.As(err, &ue) || !strings.Contains(err.Error(), want) {
 			t.Fatalf("Open = %v, want the 4D refusal", err)
+		}
+		// OpenVolume reads each volume of the series.
+		per := len(values) / e.Volumes
+		for v := 0; v < e.Volumes; v++ {
+			r, err := OpenVolume(path, v)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if r.Volumes() != e.Volumes {
+				t.Errorf("Volumes = %d, want %d", r.Volumes(), e.Volumes)
+			}
+			checkReader(t, r, e, values[v*per:(v+1)*per])
+			r.Close()
+		}
+		if _, err := OpenVolume(path, e.Volumes); err == nil || !strings.Contains(err.Error(), "the file has") {
+			t.Errorf("OpenVolume past the last volume = %v", err)
 		}
 		return
 	}
+	r, err := Open(path)
 	if err != nil {
 		t.Fatal(err)
 	}
 	defer r.Close()
+	checkReader(t, r, e, values)
+}
+
+// checkReader checks what r reads against the manifest entry and the expected values.
+func checkReader(t *testing.T, r *Reader, e manifestEntry, values []float64) {
+	t.Helper()
 	h := r.Header()
 	size := [3]int{1, 1, 1}
 	for i := 0; i < 3 && i < len(e.Shape); i++ {
@@ -262,7 +289,6 @@ func checkFixture(t *testing.T, dir string, e manifestEntry) {
 		t.Errorf("sform affine\n got %v\nwant %v (nibabel get_sform)", a, e.SformAffine)
 	}
 
-	values := expectedValues(t, dir, e)
 	if int64(len(values)) != h.Voxels() {
 		t.Fatalf("%d expected values for %d voxels", len(values), h.Voxels())
 	}

@@ -16,7 +16,8 @@ type memFile struct{ *bytes.Reader }
 
 func (memFile) Close() error { return nil }
 
-// FuzzOpen opens arbitrary bytes as a NIfTI-1 file, gzip-compressed first when
+// FuzzOpen opens arbitrary bytes as a NIfTI-1 file (as Open, or as OpenVolume when
+// vol ≥ 0), gzip-compressed first when
 // compress is set (so that mutated headers reach the .nii.gz path too; the bytes
 // may also be gzip already), and reads every slice and a few seeks. Nothing may panic; every refusal must be a *FormatError or an
 // *UnsupportedError (the input is in memory, so no other failure is possible); an
@@ -29,25 +30,28 @@ func FuzzOpen(f *testing.F) {
 		if err != nil {
 			f.Fatal(err)
 		}
-		f.Add(b, false)
+		f.Add(b, false, int8(-1))
 		if !strings.HasSuffix(e.File, ".gz") {
-			f.Add(b, true)
+			f.Add(b, true, int8(-1))
+		}
+		if e.Volumes > 1 {
+			f.Add(b, false, int8(e.Volumes-1))
 		}
 	}
-	f.Add([]byte{}, false)
-	f.Add(make([]byte, headerSize), true)
-	f.Fuzz(func(t *testing.T, data []byte, compress bool) {
+	f.Add([]byte{}, false, int8(-1))
+	f.Add(make([]byte, headerSize), true, int8(0))
+	f.Fuzz(func(t *testing.T, data []byte, compress bool, vol int8) {
 		if compress {
 			data = gzipped(data)
 		}
-		r, err := newReader("fuzz.nii", memFile{bytes.NewReader(data)}, int64(len(data)))
+		r, err := newReader("fuzz.nii", memFile{bytes.NewReader(data)}, int64(len(data)), int(vol)) // vol < 0: as Open
 		if err != nil {
 			checkTyped(t, err)
 			return
 		}
 		h := r.Header()
-		if !r.Compressed() && r.p.voxOffset+r.p.storedBytes() > int64(len(data)) {
-			t.Fatalf("accepted %d bytes at %d from %d", r.p.storedBytes(), r.p.voxOffset, len(data))
+		if !r.Compressed() && r.p.fileBytes() > int64(len(data)) {
+			t.Fatalf("accepted data to byte %d from %d", r.p.fileBytes(), len(data))
 		}
 		s := new(volume.Slice)
 		for z := 0; ; z++ {

@@ -319,15 +319,18 @@ type parsed struct {
 	h         volume.Header // as presented to the caller
 	stored    Datatype
 	voxOffset int64
-	scaled    bool // slope and inter are applied
+	volumes   int64 // volumes in the file: the product of dim[4..dim[0]]
+	dataStart int64 // where the volume read starts: voxOffset + its index · its size
+	scaled    bool  // slope and inter are applied
 	slope     float64
 	inter     float64
 }
 
 // parse checks a decoded header and turns it into a volume header: dimensions, data
-// type and bitpix, spacing and unit, data offset and scaling. It allocates nothing in
-// proportion to what the header claims.
-func (r *rawHeader) parse(path string) (*parsed, error) {
+// type and bitpix, spacing and unit, data offset and scaling. vol < 0 refuses a series
+// of volumes; vol ≥ 0 picks volume vol of it (0 for a 3D file). It allocates nothing
+// in proportion to what the header claims.
+func (r *rawHeader) parse(path string, vol int) (*parsed, error) {
 	switch r.magic {
 	case magicSingle:
 	case magicPair:
@@ -355,7 +358,10 @@ func (r *rawHeader) parse(path string) (*parsed, error) {
 			series *= int64(v)
 		}
 	}
-	if series > 1 {
+	if vol >= 0 && int64(vol) >= series {
+		return nil, &FormatError{Path: path, Msg: fmt.Sprintf("volume %d asked for, the file has %d (numbered from 0)", vol, series)}
+	}
+	if series > 1 && vol < 0 {
 		if ndim == 4 {
 			return nil, &UnsupportedError{Path: path, Msg: fmt.Sprintf("4D NIfTI (%d volumes) not supported: tripass filters 3D volumes; split the series first", series)}
 		}
@@ -429,8 +435,18 @@ func (r *rawHeader) parse(path string) (*parsed, error) {
 	if err := p.h.Validate(); err != nil {
 		return nil, &FormatError{Path: path, Msg: "bad dimensions", Err: err}
 	}
+	// The whole series must stay within the same bound as one volume, so that the
+	// offsets below cannot overflow.
+	p.volumes = series
+	if series > volume.MaxVoxels/p.h.Voxels() {
+		return nil, &FormatError{Path: path, Msg: fmt.Sprintf("bad dimensions: %d volumes of %d×%d×%d voxels exceed 2^40", series, p.h.NX, p.h.NY, p.h.NZ), Err: volume.ErrSize}
+	}
+	p.dataStart = p.voxOffset + int64(max(vol, 0))*p.storedBytes()
 	return p, nil
 }
+
+// fileBytes is where the data of every volume end.
+func (p *parsed) fileBytes() int64 { return p.voxOffset + p.volumes*p.storedBytes() }
 
 // storedBytes is the size of the data as stored.
 func (p *parsed) storedBytes() int64 { return p.h.Voxels() * int64(p.stored.Size()) }

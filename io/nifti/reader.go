@@ -59,7 +59,24 @@ var (
 // *UnsupportedError for NIfTI that tripass does not handle (4D series, complex or RGB
 // data, NIfTI-2, .hdr/.img pairs), and the operating system's errors for failures to
 // read. Open reads the header and nothing of the data.
-func Open(path string) (*Reader, error) {
+func Open(path string) (*Reader, error) { return open(path, -1) }
+
+// OpenVolume opens volume vol (counted from 0) of a NIfTI-1 series (a 4D file, or 5D
+// with one volume per index) as a 3D volume; volume 0 of a 3D file is the file. It is
+// how a caller processes a time series volume by volume, where Open refuses it. The
+// header, orientation and scaling are the file's, shared by all its volumes. In a
+// .nii.gz the volumes before vol are decompressed and discarded.
+func OpenVolume(path string, vol int) (*Reader, error) {
+	if vol < 0 {
+		return nil, fmt.Errorf("nifti: %s: volume %d: volumes are numbered from 0", path, vol)
+	}
+	return open(path, vol)
+}
+
+// Volumes is the number of volumes in the file (1 for a 3D volume).
+func (r *Reader) Volumes() int { return int(r.p.volumes) }
+
+func open(path string, vol int) (*Reader, error) {
 	f, err := os.Open(path)
 	if err != nil {
 		return nil, fmt.Errorf("nifti: %w", err)
@@ -73,7 +90,7 @@ func Open(path string) (*Reader, error) {
 		f.Close()
 		return nil, &FormatError{Path: path, Msg: "not a regular file"}
 	}
-	r, err := newReader(path, f, st.Size())
+	r, err := newReader(path, f, st.Size(), vol)
 	if err != nil {
 		f.Close()
 		return nil, err
@@ -83,7 +100,7 @@ func Open(path string) (*Reader, error) {
 
 // newReader reads the header of a NIfTI-1 file of size bytes from f and positions the
 // reader at the first slice. Open and the fuzz tests share it; it does not close f.
-func newReader(path string, f io.ReadSeekCloser, size int64) (*Reader, error) {
+func newReader(path string, f io.ReadSeekCloser, size int64, vol int) (*Reader, error) {
 	r := &Reader{path: path, f: f, size: size}
 	var lead [2]byte
 	n, err := io.ReadFull(f, lead[:])
@@ -114,32 +131,36 @@ func newReader(path string, f io.ReadSeekCloser, size int64) (*Reader, error) {
 	if err != nil {
 		return nil, err
 	}
-	p, err := raw.parse(path)
+	p, err := raw.parse(path, vol)
 	if err != nil {
 		return nil, err
 	}
 	r.raw, r.p = raw, p
-	end := p.voxOffset + p.storedBytes() // ≤ 2^62 + 2^43: no overflow
+	end := p.fileBytes() // ≤ 2^62 + 2^43: no overflow
+	data, dims := p.fileBytes()-p.voxOffset, fmt.Sprintf("%d×%d×%d", p.h.NX, p.h.NY, p.h.NZ)
+	if p.volumes > 1 {
+		dims += fmt.Sprintf("×%d", p.volumes)
+	}
 	if r.gz == nil {
 		if end > size {
 			return nil, &FormatError{Path: path, Msg: fmt.Sprintf(
-				"the file is %d bytes, but its header places %d bytes of %v data (%d×%d×%d) at vox_offset %d, ending at byte %d",
-				size, p.storedBytes(), p.stored, p.h.NX, p.h.NY, p.h.NZ, p.voxOffset, end)}
+				"the file is %d bytes, but its header places %d bytes of %v data (%s) at vox_offset %d, ending at byte %d",
+				size, data, p.stored, dims, p.voxOffset, end)}
 		}
 	} else if end/maxDeflateRatio > size {
 		return nil, &FormatError{Path: path, Msg: fmt.Sprintf(
-			"the compressed file is %d bytes, too small for the %d bytes of %v data (%d×%d×%d) its header claims (deflate expands at most %d:1)",
-			size, p.storedBytes(), p.stored, p.h.NX, p.h.NY, p.h.NZ, maxDeflateRatio)}
+			"the compressed file is %d bytes, too small for the %d bytes of %v data (%s) its header claims (deflate expands at most %d:1)",
+			size, data, p.stored, dims, maxDeflateRatio)}
 	}
 	r.swap = raw.order == binary.BigEndian && p.stored.Size() > 1
 	if r.gz == nil {
 		if err := r.seekData(0, false); err != nil {
 			return nil, err
 		}
-	} else if skip := p.voxOffset - headerSize; skip > 0 {
-		// Extensions between the header and the data: skip them.
+	} else if skip := p.dataStart - headerSize; skip > 0 {
+		// Extensions between the header and the data, and earlier volumes: skip them.
 		if n, err := io.CopyN(io.Discard, r.gz, skip); err != nil {
-			return nil, r.dataError(fmt.Sprintf("the header extensions (%d of %d bytes)", n, skip), err)
+			return nil, r.dataError(fmt.Sprintf("the header extensions or earlier volumes (%d of %d bytes)", n, skip), err)
 		}
 	}
 	return r, nil
@@ -169,7 +190,7 @@ func (r *Reader) rewind() error {
 func (r *Reader) seekData(z int, restart bool) error {
 	sb := int64(r.p.storedSliceBytes())
 	if r.gz == nil {
-		pos := r.p.voxOffset + int64(z)*sb
+		pos := r.p.dataStart + int64(z)*sb
 		if _, err := r.f.Seek(pos, io.SeekStart); err != nil {
 			return fmt.Errorf("nifti: %s: seek: %w", r.path, err)
 		}
@@ -186,7 +207,7 @@ func (r *Reader) seekData(z int, restart bool) error {
 			return r.dataError("the gzip header", err)
 		}
 		r.src = r.gz
-		skip = r.p.voxOffset + int64(z)*sb
+		skip = r.p.dataStart + int64(z)*sb
 	}
 	if skip > 0 {
 		if n, err := io.CopyN(io.Discard, r.gz, skip); err != nil {
@@ -280,7 +301,7 @@ func (r *Reader) ReadSlice(dst *volume.Slice) error {
 		r.convert(dst, buf)
 	}
 	r.z++
-	if r.z == h.NZ && r.gz != nil && !r.checked {
+	if r.z == h.NZ && r.gz != nil && !r.checked && r.p.dataStart+r.p.storedBytes() == r.p.fileBytes() {
 		r.checked = true
 		// Reading past the data makes the gzip reader verify its checksum and length.
 		// It then looks for another gzip member: gzip.ErrHeader there means bytes
