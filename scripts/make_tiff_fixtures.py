@@ -160,6 +160,24 @@ def main():
         tw.write(a[0, ::2, ::2].copy(), photometric="minisblack", subfiletype=1, metadata=None)
     add(name, "uint16", data="uint16_thumb.bin", pages=NZ, skipped=1)
 
+    # ImageJ-style stacks as tifffile writes them (imagej=True): resolution in pixels per
+    # micrometre with ResolutionUnit 1 (none), the unit and z spacing in the
+    # description.
+    for dtype in ["uint16", "float32"]:
+        a = np.fromfile(os.path.join(OUT, dtype + ".bin"), np.dtype(dtype).newbyteorder("<")).reshape(NZ, NY, NX)
+        name = f"{SHORT[dtype]}_imagej.tif"
+        tifffile.imwrite(os.path.join(OUT, name), a, imagej=True, resolution=(1 / 0.65, 1 / 0.65),
+                         metadata={"spacing": 2.0, "unit": "um", "axes": "ZYX"})
+        with tifffile.TiffFile(os.path.join(OUT, name)) as tf:
+            xn, xd = tf.pages[0].tags["XResolution"].value
+            yn, yd = tf.pages[0].tags["YResolution"].value
+        add(name, dtype, spacing=[1 / (xn / xd), 1 / (yn / yd), tf.imagej_metadata["spacing"]], unit="um")
+    # An ImageJ hyperstack of two channels, which tripass must refuse rather than read
+    # the channels as interleaved slices.
+    a = np.zeros((2, 2, 6, 7), np.uint16)  # z, c, y, x
+    tifffile.imwrite(os.path.join(OUT, "ij_two_channels.tif"), a, imagej=True, metadata={"axes": "ZCYX"})
+    manifest["unsupported"] = [{"file": "ij_two_channels.tif", "error": "2 channels"}]
+
     # A folder of single-page slices numbered without padding, so that name order
     # (slice_10 before slice_2) and number order differ.
     nz = 11

@@ -4,9 +4,11 @@ import (
 	"bytes"
 	"encoding/binary"
 	"encoding/json"
+	"errors"
 	"math"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 
 	"github.com/tripass/tripass/volume"
@@ -29,6 +31,10 @@ type manifest struct {
 		Compression string // tifffile's COMPRESSION name
 		Predictor   int
 		Tiled       bool
+	}
+	Unsupported []struct {
+		File  string
+		Error string
 	}
 	Folders []struct {
 		Dir       string
@@ -147,6 +153,15 @@ func testFixtures(t *testing.T) {
 			// expected: the voxels NumPy 1.24.2 wrote as little-endian raw bytes.
 			if got := readAllSlices(t, r); !bytes.Equal(got, want) {
 				t.Errorf("voxels differ from %s", f.Data)
+			}
+		})
+	}
+	for _, f := range m.Unsupported {
+		t.Run(f.File, func(t *testing.T) {
+			_, err := Open(filepath.Join("testdata", f.File))
+			var ue UnsupportedError
+			if !errors.As(err, &ue) || !strings.Contains(err.Error(), f.Error) {
+				t.Errorf("Open: %v, want an UnsupportedError saying %q", err, f.Error)
 			}
 		})
 	}

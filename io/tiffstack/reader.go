@@ -192,6 +192,9 @@ func parse(ra io.ReaderAt, size int64, firstOnly bool, dec *decoder) (*Reader, e
 		}
 	}
 	p0 := r.pages[0]
+	if ij, ok := parseImageJ(p0.desc); ok && (ij.channels > 1 || ij.frames > 1) {
+		return nil, UnsupportedError(fmt.Sprintf("ImageJ hyperstack with %d channels and %d frames; tripass reads one channel at one time point (split it first)", max(ij.channels, 1), max(ij.frames, 1)))
+	}
 	r.hdr = volume.Header{NX: p0.width, NY: p0.height, NZ: len(r.pages), Type: p0.typ}
 	r.hdr.Spacing, r.hdr.Unit = spacingOf(p0)
 	if err := r.hdr.Validate(); err != nil {
@@ -284,13 +287,62 @@ func parseDescription(s string) (sp [3]float64, unit string, ok bool) {
 	return sp, unit, true
 }
 
+// imageJMeta is what tripass takes from the ImageDescription that ImageJ (and tifffile
+// in its ImageJ mode) writes on page 0: lines of key=value after a first line
+// "ImageJ=<version>". The keys used here, from memory of files in the wild: unit (the
+// length unit of the spacing; "micron" or an escaped "\u00B5m" for micrometres),
+// spacing (the z spacing in that unit), channels and frames (more than one of either
+// interleaves other images with the z-slices). Such files give XResolution in pixels
+// per that unit with ResolutionUnit 1 (none).
+type imageJMeta struct {
+	unit             string // canonical; "" when absent or not a length
+	zSpacing         float64
+	channels, frames int
+}
+
+func parseImageJ(desc string) (imageJMeta, bool) {
+	var m imageJMeta
+	if !strings.HasPrefix(desc, "ImageJ=") {
+		return m, false
+	}
+	for _, line := range strings.Split(desc, "\n") {
+		k, v, ok := strings.Cut(strings.TrimSpace(line), "=")
+		if !ok {
+			continue
+		}
+		switch k {
+		case "unit":
+			v = strings.ReplaceAll(v, `\u00B5`, "µ")
+			if u, err := volume.CanonicalUnit(v); err == nil {
+				m.unit = u
+			}
+		case "spacing":
+			if x, err := strconv.ParseFloat(v, 64); err == nil && x > 0 && x < 1e300 {
+				m.zSpacing = x
+			}
+		case "channels":
+			m.channels, _ = strconv.Atoi(v)
+		case "frames":
+			m.frames, _ = strconv.Atoi(v)
+		}
+	}
+	return m, true
+}
+
 // spacingOf derives the voxel spacing from page 0: x and y from XResolution and
 // YResolution (pixels per ResolutionUnit; TIFF 6.0 Section 8: 2 inch, the default, 3
 // centimetre), z and the unit from tripass's own description. The description's exact
 // decimal values win when they agree with the resolution tags to 1e-6; tags that
-// disagree (edited by another program) win over it.
+// disagree (edited by another program) win over it. An ImageJ description supplies the
+// unit and z spacing the same way, and the unit of resolution tags that have none.
 func spacingOf(p *page) ([3]float64, string) {
 	dsp, dunit, dok := parseDescription(p.desc)
+	if ij, ok := parseImageJ(p.desc); ok && ij.unit != "" {
+		dsp, dunit, dok = [3]float64{0, 0, ij.zSpacing}, ij.unit, true
+		if p.hasRes && p.xres > 0 && p.yres > 0 && p.resUnit == resUnitNone {
+			return [3]float64{1 / p.xres, 1 / p.yres, ij.zSpacing}, ij.unit
+		}
+	}
 	var sp [3]float64
 	unit := ""
 	if p.hasRes && p.xres > 0 && p.yres > 0 && (p.resUnit == resUnitInch || p.resUnit == resUnitCenti) {
