@@ -56,10 +56,17 @@ type FilterOptions struct {
 	// of slices written and the total. It is called from one goroutine (not the
 	// caller's), in order.
 	Progress func(done, total int)
+	// MaxBufferBytes, if positive, makes Filter fail with ErrMemory, before it allocates
+	// anything, when its buffers would exceed this many bytes (see FilterStats).
+	MaxBufferBytes int64
 	// TempDir is the folder of the temporary copy of the input that periodic edges need
 	// when the source cannot seek (see Filter); "" means os.TempDir().
 	TempDir string
 }
+
+// ErrMemory is returned by Filter when its buffers would exceed
+// FilterOptions.MaxBufferBytes.
+var ErrMemory = errors.New("not enough memory allowed")
 
 // FilterStats reports what Filter did.
 type FilterStats struct {
@@ -192,6 +199,10 @@ func Filter(dst SliceWriter, src Source, outType SampleType, plans []*tensor.Pla
 			src, seeker = sp, sp
 		}
 		e.seeker = seeker
+	}
+	if need := e.bufferBytes(); opt.MaxBufferBytes > 0 && need > opt.MaxBufferBytes {
+		return stats, fmt.Errorf("filter: %w: the kernels need %d MiB of buffers for %d×%d slices, more than the limit of %d MiB",
+			ErrMemory, need>>20, h.NX, h.NY, opt.MaxBufferBytes>>20)
 	}
 	e.alloc()
 	err := e.run(dst, src)
@@ -406,6 +417,41 @@ func (e *engine) slotOf(i int) int {
 func (e *engine) floats(n int) []float32 {
 	e.bytes += int64(n) * 4
 	return make([]float32, n)
+}
+
+// bufferBytes is what alloc will allocate, in bytes, worked out without allocating.
+func (e *engine) bufferBytes() int64 {
+	S, ny := int64(e.S), int64(e.ny)
+	sliceLen := ny * S
+	block := int64(e.block) * S
+	var n int64 // float32 values
+	needG, needChunk := false, false
+	for _, c := range e.plans {
+		for _, b := range c.branches {
+			needG = needG || (c.order == tensor.XYZ && !b.first.identity())
+			needChunk = needChunk || (c.order == tensor.YXZ && !b.first.identity())
+			n += int64(len(b.leaves)) * int64(e.nslots) * sliceLen
+		}
+	}
+	if needG {
+		n += sliceLen + S
+	}
+	t := int64(e.threads)
+	if needChunk {
+		n += t * (block + S)
+	}
+	if e.combine == CombineMagnitude {
+		n += t * int64(e.group) * block
+	}
+	if e.anyDirect {
+		n += t * block * 3 // a float32 and a float64 block
+	}
+	nin := int64(3)
+	if e.anyDirect {
+		nin = int64(e.nslots) + 2
+	}
+	n += nin*int64(e.inLen) + int64(e.group+2)*sliceLen
+	return 4*n + int64(e.h.SliceBytes()) + int64(e.nx*e.ny*e.outType.Size())
 }
 
 // alloc allocates every working buffer, once.

@@ -1,6 +1,7 @@
 package volume
 
 import (
+	"errors"
 	"runtime"
 	"sync"
 	"sync/atomic"
@@ -100,6 +101,17 @@ func TestFilterMemoryIndependentOfDepth(t *testing.T) {
 			p1024, a1024, st1024 := run(1024)
 			t.Logf("nz=32: peak heap %.1f MiB, allocated %.1f MiB; nz=1024: peak %.1f MiB, allocated %.1f MiB; engine buffers %.1f MiB",
 				mib(p32), mib(a32), mib(p1024), mib(a1024), mib(uint64(st1024.PeakBufferBytes)))
+			// The limit check works out the same figure before allocating.
+			h := Header{NX: 160, NY: 128, NZ: 64, Type: Uint16}
+			_, err := Filter(&MemSink{}, NewGenSource(h, rockSlice(160, 128)), Uint16, []*tensor.Plan{c.plan}, CombineNone,
+				FilterOptions{Edge: c.edge, Threads: 2, MaxBufferBytes: st1024.PeakBufferBytes - 1})
+			if !errors.Is(err, ErrMemory) {
+				t.Errorf("limit one byte below the buffers: %v", err)
+			}
+			if _, err := Filter(&MemSink{}, NewGenSource(h, rockSlice(160, 128)), Uint16, []*tensor.Plan{c.plan}, CombineNone,
+				FilterOptions{Edge: c.edge, Threads: 2, MaxBufferBytes: st1024.PeakBufferBytes}); err != nil {
+				t.Errorf("limit equal to the buffers: %v", err)
+			}
 			if st32.PeakBufferBytes != st1024.PeakBufferBytes {
 				t.Errorf("engine buffers %d bytes for 32 slices, %d for 1024", st32.PeakBufferBytes, st1024.PeakBufferBytes)
 			}
