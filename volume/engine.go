@@ -844,15 +844,19 @@ func (e *engine) zSeparable(c *compiled, dsts [][]float32, off int) {
 	}
 }
 
-// zDirect adds a direct plan's taps for rows y0.. of the current output slice to dst.
-// The taps of one kernel row (same dy, dz) are summed in float32, the rows in float64:
-// a dense kernel has up to kx·ky·kz taps, and one float32 sum over all of them would lose
-// digits on data far from zero, while kx taps keep float32's error negligible.
+// zDirect adds a direct plan's taps for rows y0.. of output slice z to dst. Taps are
+// summed in float32 over runs of whole kernel rows (same dy, dz) of at least
+// directRun taps, and the runs in float64: a dense kernel has up to kx·ky·kz taps, and
+// one float32 sum over all of them loses digits on data far from zero (measured: 17³
+// taps on data in [100, 110] were off by 7e-5 of the data range), while short runs keep
+// float32's error negligible and the float64 additions rare.
 func (e *engine) zDirect(w int, c *compiled, dst []float32, y0, z int) {
 	S := e.S
 	n := len(dst)
 	tmp, acc := e.dtmp[w][:n], e.dacc[w][:n]
 	clear(acc)
+	clear(tmp)
+	inTmp := 0 // taps summed in tmp since the last flush
 	taps := c.taps
 	for len(taps) > 0 {
 		// one kernel row: the run of taps with the same dz and dy
@@ -862,7 +866,6 @@ func (e *engine) zDirect(w int, c *compiled, dst []float32, y0, z int) {
 		}
 		row := taps[:k]
 		taps = taps[k:]
-		clear(tmp)
 		j, ok := e.edge.Index(z+row[0].dz, e.nz)
 		if !ok {
 			var s float32
@@ -877,14 +880,21 @@ func (e *engine) zDirect(w int, c *compiled, dst []float32, y0, z int) {
 				axpy(tmp, in[base+t.dx:], t.w)
 			}
 		}
-		for i, v := range tmp {
-			acc[i] += float64(v)
+		inTmp += k
+		if inTmp >= directRun || len(taps) == 0 {
+			addTo64(acc, tmp)
+			clear(tmp)
+			inTmp = 0
 		}
 	}
 	for i, v := range acc {
 		dst[i] += float32(v)
 	}
 }
+
+// directRun is the number of direct taps summed in float32 before the sum moves to
+// float64 (see zDirect).
+const directRun = 24
 
 // reader reads the input slices in the order of the schedule, decodes and extends them.
 func (e *engine) reader(src Source) {

@@ -37,3 +37,20 @@ func sqrAdd(dst, src []float32) {
 		dst[i] += v * v
 	}
 }
+
+// addTo64 sets acc[i] += src[i] for every i, in float64.
+func addTo64(acc []float64, src []float32) {
+	src = src[:len(acc)]
+	i := 0
+	for ; i+4 <= len(acc); i += 4 {
+		a := acc[i : i+4 : i+4]
+		s := src[i : i+4 : i+4]
+		a[0] += float64(s[0])
+		a[1] += float64(s[1])
+		a[2] += float64(s[2])
+		a[3] += float64(s[3])
+	}
+	for ; i < len(acc); i++ {
+		acc[i] += float64(src[i])
+	}
+}
