@@ -480,3 +480,37 @@ func TestSinkAndSources(t *testing.T) {
 		t.Errorf("GenSource past the end: %v", err)
 	}
 }
+
+// TestFilterMixedPlans sums plans of every form and order (direct, CP, Tucker XYZ and
+// YXZ, of different sizes) from an int16 input and compares with the definition
+// applied to each kernel and summed.
+func TestFilterMixedPlans(t *testing.T) {
+	rng := rand.New(rand.NewPCG(8, 8))
+	shape := [3]int{13, 11, 17}
+	h := Header{NX: shape[0], NY: shape[1], NZ: shape[2], Type: Int16}
+	data := make([]float32, h.Voxels())
+	for i := range data {
+		data[i] = float32(rng.IntN(2000) - 1000)
+	}
+	k1, p1 := randomKernelPlans(rng, 3, 5, 7)
+	k2, p2 := randomKernelPlans(rng, 4, 2, 3)
+	k3, p3 := randomKernelPlans(rng, 1, 6, 1)
+	plans := []*tensor.Plan{p1["tucker-yxz"], p2["direct"], p3["tucker-xyz"], p1["cp"]}
+	kernels := []*tensor.Dense{k1, k2, k3, k1}
+	scale := []float64{1, -0.5, 2, 0.25}
+	for _, edge := range allEdges {
+		want := make([]float64, len(data))
+		for i, k := range kernels {
+			for j, v := range naiveConvolve(data, shape, k, edge, 3) {
+				want[j] += scale[i] * v
+			}
+		}
+		var sink MemSink
+		if _, err := Filter(&sink, NewMemSource(h, data), Float32, plans, CombineSum, FilterOptions{Edge: edge, Fill: 3, Scale: scale}); err != nil {
+			t.Fatal(err)
+		}
+		if e := maxRelErr64(sink.Data, want); e > 1e-5 {
+			t.Errorf("%v: max error %.3g of the data range", edge, e)
+		}
+	}
+}
