@@ -148,6 +148,19 @@ func (p *progress) update(done int) {
 	}
 }
 
+// resize says that the run streams total slices, not the whole stack: a shard, or a
+// range of it. Call it before the first update.
+func (p *progress) resize(total int) {
+	if total <= 0 || total == p.total {
+		return
+	}
+	p.total = total
+	if p.bar != nil {
+		p.bar.ChangeMax64(int64(total) * p.sliceBytes)
+		p.bar.Describe(p.describe(0))
+	}
+}
+
 // progressLine is one JSON progress line, and the figures of the summary.
 type progressLine struct {
 	Event        string  `json:"event"` // "progress" or "summary"

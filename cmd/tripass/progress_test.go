@@ -122,3 +122,23 @@ func TestJSONProgressIsThrottled(t *testing.T) {
 		t.Errorf("%d progress lines in %.3f s for 600 slices; want at most %d", n, sum.Seconds, most)
 	}
 }
+
+// TestJSONProgressOfAShard checks that a sharded run counts its own slices: task 2 of 4
+// of a 24-slice stack streams 6 and ends complete.
+func TestJSONProgressOfAShard(t *testing.T) {
+	dir := t.TempDir()
+	stack := writeStack(t, dir, "rock.tif", phantom.RockCore(30, 26, 24, [3]float64{6, 6, 10}, 1))
+	code, _, errs := runCLI(t, "smooth", stack, filepath.Join(dir, "s.tif"), "--sigma", "1", "--shard", "2/4",
+		"--log", "json", "--quiet")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	lines := strings.Split(strings.TrimSpace(errs), "\n")
+	var sum progressLine
+	if err := json.Unmarshal([]byte(lines[len(lines)-1]), &sum); err != nil || sum.Event != "summary" {
+		t.Fatalf("last line %q is not the summary", lines[len(lines)-1])
+	}
+	if sum.Total != 6 || sum.Done != 6 || sum.Complete == nil || !*sum.Complete || sum.Voxels != 6*30*26 {
+		t.Errorf("summary %+v: want 6 of 6 slices, complete", sum)
+	}
+}
