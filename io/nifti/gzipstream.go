@@ -26,6 +26,10 @@ const gzipChunk = 512 << 10
 // Compressing chunks independently and joining them with sync flushes is the method
 // of pigz's --independent mode (M. Adler); it keeps the output a plain single-member
 // gzip file that any gzip reader reads.
+// gzipWorkers is the number of compressing goroutines; 0 means GOMAXPROCS. Tests and
+// benchmarks set it.
+var gzipWorkers = 0
+
 type gzipStream struct {
 	out   io.Writer
 	cur   *gzipJob      // the chunk being filled
@@ -58,7 +62,10 @@ func (w appendWriter) Write(p []byte) (int, error) { *w.b = append(*w.b, p...); 
 // GOMAXPROCS. It writes the 10-byte member header at once: no name, modification time
 // 0 (the same output for the same input), operating system unknown.
 func newGzipStream(out io.Writer, level int) (*gzipStream, error) {
-	workers := runtime.GOMAXPROCS(0)
+	workers := gzipWorkers
+	if workers <= 0 {
+		workers = runtime.GOMAXPROCS(0)
+	}
 	inFlight := 2*workers + 1
 	s := &gzipStream{
 		out:   out,

@@ -15,6 +15,14 @@ import (
 // reading a single member only: the output must be one member holding exactly the
 // input, with a verified CRC-32 and length.
 func TestGzipStreamIsOneMember(t *testing.T) {
+	for _, workers := range []int{1, 2, 5} {
+		gzipWorkers = workers
+		checkGzipStream(t)
+	}
+	gzipWorkers = 0
+}
+
+func checkGzipStream(t *testing.T) {
 	rng := rand.New(rand.NewPCG(4, 4))
 	for _, n := range []int{0, 1, 1000, gzipChunk - 1, gzipChunk, gzipChunk + 1, 3*gzipChunk + 17, 9 * gzipChunk} {
 		in := make([]byte, n)
