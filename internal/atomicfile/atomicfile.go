@@ -142,6 +142,9 @@ func (d *Dir) Abort() error {
 
 func checkTarget(target string, overwrite bool) error {
 	st, err := os.Lstat(target)
+	if err == nil && st.IsDir() && isEmptyDir(target) {
+		return nil // a folder made ready for the output holds nothing to lose
+	}
 	switch {
 	case err == nil && !overwrite:
 		return fmt.Errorf("%s: %w", target, ErrExists)
@@ -151,6 +154,16 @@ func checkTarget(target string, overwrite bool) error {
 		return err
 	}
 	return nil
+}
+
+func isEmptyDir(p string) bool {
+	d, err := os.Open(p)
+	if err != nil {
+		return false
+	}
+	defer d.Close()
+	names, err := d.Readdirnames(1)
+	return err != nil && len(names) == 0
 }
 
 // SyncFile syncs and closes a file written inside a temporary folder.

@@ -74,3 +74,19 @@ func TestDirCommitReplacesWithOverwrite(t *testing.T) {
 		t.Error("old folder's file survived the replacement")
 	}
 }
+
+func TestEmptyFolderIsNoObstacle(t *testing.T) {
+	target := filepath.Join(t.TempDir(), "slices")
+	os.Mkdir(target, 0o755)
+	d, err := CreateDir(target, false)
+	if err != nil {
+		t.Fatalf("an empty existing folder was refused: %v", err)
+	}
+	os.WriteFile(filepath.Join(d.Path, "z0.tif"), []byte("x"), 0o644)
+	if err := d.Commit(); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := os.Stat(filepath.Join(target, "z0.tif")); err != nil {
+		t.Error(err)
+	}
+}
