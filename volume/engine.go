@@ -1,6 +1,7 @@
 package volume
 
 import (
+	"encoding/binary"
 	"errors"
 	"fmt"
 	"io"
@@ -964,10 +965,27 @@ func (e *engine) decode(raw *Slice, b *inBuf) {
 	b.nan, b.inf = 0, 0
 	for y := 0; y < e.ny; y++ {
 		line := d[(y+e.padT)*S : (y+e.padT+1)*S]
-		row := Slice{NX: nx, NY: 1, Type: raw.Type, Data: raw.Data[y*rb : (y+1)*rb]}
 		vals := line[e.padL : e.padL+nx]
-		row.ToFloat32(vals)
-		if isFloat {
+		if raw.Type == Float32 {
+			// The common case in one pass: decode and look for NaN and ±Inf, the
+			// values whose exponent bits are all ones.
+			src := raw.Data[y*rb : (y+1)*rb]
+			for i := range vals {
+				u := binary.LittleEndian.Uint32(src[4*i:])
+				vals[i] = math.Float32frombits(u)
+				if u&0x7f800000 == 0x7f800000 {
+					if u&0x007fffff != 0 {
+						b.nan++
+					} else {
+						b.inf++
+					}
+				}
+			}
+		} else {
+			row := Slice{NX: nx, NY: 1, Type: raw.Type, Data: raw.Data[y*rb : (y+1)*rb]}
+			row.ToFloat32(vals)
+		}
+		if isFloat && raw.Type != Float32 {
 			for _, v := range vals {
 				// NaN and ±Inf are the values whose exponent bits are all ones.
 				if math.Float32bits(v)&0x7f800000 == 0x7f800000 {
