@@ -74,8 +74,10 @@ const (
 	plotDPI    = 96
 )
 
-// Colours of the three axes and of the three forms (the Okabe–Ito palette, chosen to
-// stay apart for readers with colour-vision deficiencies; common practice).
+// Colours of the three axes and of the three forms, from the palette of M. Okabe and
+// K. Ito, "Color Universal Design (CUD): how to make figures and presentations that are
+// friendly to colorblind people", J*Fly, 2008 (reference from memory), chosen to stay
+// apart for readers with colour-vision deficiencies.
 var (
 	axisColours = [3]color.Color{
 		color.RGBA{0, 114, 178, 255}, // x: blue

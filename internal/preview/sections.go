@@ -251,7 +251,9 @@ func percentile(vals []float64, q float64) float64 {
 }
 
 // selectKth reorders v so that v[k] is the value of rank k, smaller values before it
-// and larger after (Hoare's selection with a median-of-three pivot), and returns v[k].
+// and larger after, and returns v[k]: C. A. R. Hoare's selection ("Algorithm 65: Find",
+// Communications of the ACM 4(7):321–322, 1961), with a median-of-three pivot against
+// sorted runs. Expected time is linear in len(v).
 func selectKth(v []float64, k int) float64 {
 	lo, hi := 0, len(v)-1
 	for lo < hi {
