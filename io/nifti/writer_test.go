@@ -74,7 +74,8 @@ func fixtureOrientation(t testing.TB) Orientation {
 }
 
 // TestWriteReadBack writes every sample type to .nii and .nii.gz, with and without a
-// carried orientation, and reads it back exactly.
+// carried orientation, and reads it back exactly (reader and writer agree; the header
+// layout test and the nibabel tests tie both to the standard and to nibabel).
 func TestWriteReadBack(t *testing.T) {
 	dir := t.TempDir()
 	carried := fixtureOrientation(t)
@@ -218,6 +219,8 @@ func TestWriteUnits(t *testing.T) {
 	}
 }
 
+// TestDescriptionIsCut: descrip is char[80] (nifti1.h); 79 bytes of text keep the NUL
+// that C readers expect, cut at a UTF-8 character boundary.
 func TestDescriptionIsCut(t *testing.T) {
 	long := strings.Repeat("é", 60) // 120 bytes
 	got := descripField(long)
@@ -231,6 +234,7 @@ func TestDescriptionIsCut(t *testing.T) {
 
 // TestWriterAtomic: nothing under the target's name unless Close succeeds after every
 // slice, no temporary left behind, an existing file kept without Overwrite.
+// expected: the promise of issues 2 and 5 (atomic outputs), checked on the folder.
 func TestWriterAtomic(t *testing.T) {
 	h := volume.Header{NX: 8, NY: 5, NZ: 4, Type: volume.Float32, Spacing: [3]float64{1, 1, 1}, Unit: "mm"}
 	src := testVolume(h, 4)
@@ -279,6 +283,8 @@ func TestWriterAtomic(t *testing.T) {
 	}
 }
 
+// TestCreateRefuses: names that are not .nii/.nii.gz, sizes beyond NIfTI-1's int16
+// dim fields (nifti1.h), invalid headers and spacings beyond float32 pixdim.
 func TestCreateRefuses(t *testing.T) {
 	dir := t.TempDir()
 	ok := volume.Header{NX: 4, NY: 4, NZ: 4, Type: volume.Uint16}

@@ -191,7 +191,8 @@ func TestReadReferenceEncoding(t *testing.T) {
 }
 
 // TestRoundTrip writes and reads back every sample type × byte order (the reader and
-// the writer must agree; the two tests above tie each to encoding/binary).
+// the writer must agree; the two tests above tie each to encoding/binary, the one
+// beside them to NumPy).
 func TestRoundTrip(t *testing.T) {
 	dir := t.TempDir()
 	for _, typ := range volume.SampleTypes {
@@ -228,6 +229,8 @@ func TestRoundTrip(t *testing.T) {
 	}
 }
 
+// TestSeekSlice seeks back and forth in a big-endian file with a 3-byte header.
+// expected: the values encoded by encoding/binary (Go standard library).
 func TestSeekSlice(t *testing.T) {
 	h := header(volume.Int16)
 	values := sampleValues(h.Type, int(h.Voxels()), 3)
@@ -329,7 +332,8 @@ func TestBadDescriptions(t *testing.T) {
 	}
 }
 
-// TestFileShrinks reads a file truncated after Open: the error says so.
+// TestFileShrinks reads a file truncated after Open: the error says so and wraps
+// io.ErrUnexpectedEOF (the standard library's convention for a structure cut short).
 func TestFileShrinks(t *testing.T) {
 	h := header(volume.Float32)
 	path := filepath.Join(t.TempDir(), "shrinks.raw")
@@ -356,6 +360,7 @@ func TestFileShrinks(t *testing.T) {
 
 // TestWriterAtomic checks that nothing appears under the target's name unless Close
 // succeeds after every slice, and that no temporary file is left behind.
+// expected: the promise of issues 2 and 5 (atomic outputs), checked on the folder.
 func TestWriterAtomic(t *testing.T) {
 	h := header(volume.Uint16)
 	src := slices(h, sampleValues(h.Type, int(h.Voxels()), 1))
@@ -401,6 +406,10 @@ func TestWriterAtomic(t *testing.T) {
 	}
 }
 
+// TestWriterOverwriteAndMismatch: an existing output is kept without overwrite and
+// replaced only on Close with it; slices of the wrong shape or type, or beyond NZ, are
+// refused. expected: the promise of issue 5 (outputs are atomic, never replaced
+// unless asked).
 func TestWriterOverwriteAndMismatch(t *testing.T) {
 	dir := t.TempDir()
 	path := filepath.Join(dir, "out.raw")
