@@ -14,8 +14,7 @@ import (
 // bufSize is the size of the read and write buffers. Slices at least this large are
 // read and written directly, bypassing the buffer; smaller ones are gathered into
 // reads and writes of this size, large enough that the cost of a system call is lost
-// in the cost of moving the bytes (common practice; 1 MiB is also where a disk's
-// sequential throughput levels off).
+// in the cost of moving the bytes (common practice).
 const bufSize = 1 << 20
 
 // Reader reads a raw stack slice by slice. It implements volume.Source and
