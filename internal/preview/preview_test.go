@@ -6,6 +6,7 @@ import (
 	"io"
 	"math"
 	"math/rand/v2"
+	"sort"
 	"testing"
 
 	"github.com/tripass/tripass/internal/phantom"
@@ -400,4 +401,33 @@ func ExampleRender() {
 	// xz: 256×320 pixels
 	// yz: 256×320 pixels
 	// 0.125 µm per pixel, scale bar 5 µm
+}
+
+// TestSelectKthAgreesWithSorting checks the selection on inputs that trouble quick
+// selection: sorted, reversed, constant and few distinct values.
+func TestSelectKthAgreesWithSorting(t *testing.T) {
+	rng := rand.New(rand.NewPCG(3, 3))
+	inputs := map[string]func(i, n int) float64{
+		"random":   func(i, n int) float64 { return rng.NormFloat64() },
+		"sorted":   func(i, n int) float64 { return float64(i) },
+		"reversed": func(i, n int) float64 { return float64(n - i) },
+		"constant": func(i, n int) float64 { return 7 },
+		"three":    func(i, n int) float64 { return float64(rng.IntN(3)) },
+	}
+	for name, gen := range inputs {
+		for _, n := range []int{1, 2, 3, 10, 1001} {
+			v := make([]float64, n)
+			for i := range v {
+				v[i] = gen(i, n)
+			}
+			sorted := append([]float64(nil), v...)
+			sort.Float64s(sorted)
+			for _, k := range []int{0, n / 2, n - 1} {
+				w := append([]float64(nil), v...)
+				if got := selectKth(w, k); got != sorted[k] {
+					t.Errorf("%s, n=%d: selectKth(%d) = %g, want %g", name, n, k, got, sorted[k])
+				}
+			}
+		}
+	}
 }
