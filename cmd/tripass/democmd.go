@@ -43,9 +43,11 @@ var demoSteps = [][]string{
 	{"smooth", "{dir}/rock-core.tif", "{dir}/rock-smooth.tif", "--sigma", "9um", "--overwrite"},
 	{"gradient", "{dir}/rock-smooth.tif", "{dir}/rock-gradient.tif", "--physical", "--overwrite"},
 	// A point-spread function elongated along z and tilted 30° about y.
-	{"kernel", "make", "oriented-gaussian", "--sigma", "1,1,3", "--angles", "0,30,0", "-o", "{dir}/tilted-psf.npy"},
-	{"kernel", "inspect", "{dir}/tilted-psf.npy", "--tolerance", "1e-3"},
+	{"kernel", "make", "oriented-gaussian", "--sigma", "1,1,3", "--angles", "0,30,0", "-o", "{dir}/tilted-psf.npy", "--overwrite"},
+	{"kernel", "inspect", "{dir}/tilted-psf.npy", "--tolerance", "1e-3", "--plot", "{dir}/tilted-psf.png", "--overwrite"},
 	{"convolve", "{dir}/rock-core.tif", "{dir}/rock-psf.tif", "--kernel", "{dir}/tilted-psf.npy", "--tolerance", "1e-3", "--overwrite"},
+	// Orthogonal sections before and after smoothing, at the same contrast.
+	{"preview", "{dir}/rock-core.tif", "{dir}/rock-smooth.png", "--compare", "{dir}/rock-smooth.tif", "--overwrite"},
 }
 
 func demoAction(c *cli.Context) error {
