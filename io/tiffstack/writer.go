@@ -497,9 +497,14 @@ type Writer struct {
 	off  uint64
 	err  error
 	done bool
+	wb   uint64 // bytes handed to startWriteback so far
 }
 
 var _ volume.Sink = (*Writer)(nil)
+
+// writebackChunk is how much written data Writer lets accumulate before it asks the
+// kernel to start putting it on disk.
+const writebackChunk = 8 << 20
 
 // Create starts writing a stack of h.NZ pages to path. The file is BigTIFF when
 // opt.BigTIFF asks for it or when an upper bound of its size passes 4 GiB (compressed
@@ -552,6 +557,10 @@ func (w *Writer) WriteSlice(s *volume.Slice) error {
 	}
 	w.off = off
 	w.z++
+	if flushed := off - uint64(w.bw.Buffered()); flushed >= w.wb+writebackChunk {
+		startWriteback(w.af.File, int64(w.wb), int64(flushed-w.wb))
+		w.wb = flushed
+	}
 	return nil
 }
 
