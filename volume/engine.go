@@ -126,8 +126,15 @@ type FilterStats struct {
 // Threads. Each slice's rows are cut into blocks of a few thousand values, shared among
 // FilterOptions.Threads workers, each with its own scratch; every output value receives
 // its taps in the same order whatever the block, so the output is identical for any
-// number of threads. Arithmetic is float32 (see the package tests for the measured
-// agreement with SciPy's double-precision accumulation).
+// number of threads.
+//
+// Precision. The passes accumulate in float32 (one rounding per tap, through a SIMD
+// axpy), which keeps the engine at memory speed; direct plans sum runs of 24 taps in
+// float32 and the runs in float64, since a dense kernel may have thousands of taps. The
+// package tests measure the largest difference from SciPy's float64 results at about
+// 3e-7 of the data range for kernels of 3 to 61 taps per axis, and 3e-6 for data whose
+// offset from zero is ten times its range (Gaussian σ = 2 on values in [100, 110]),
+// within the 1e-5 that tripass promises.
 //
 // NaN and infinite input voxels are counted in the stats and propagate through the
 // arithmetic (a NaN spreads over the kernel's support).
