@@ -37,10 +37,10 @@ type page struct {
 	next          uint64
 
 	// Only read from the first page.
-	desc             string
-	xres, yres       float64 // pixels per resolution unit; 0 when absent
-	resUnit          uint16
-	hasRes, hasUnits bool
+	desc       string
+	xres, yres float64 // pixels per resolution unit; 0 when absent
+	resUnit    uint16
+	hasRes     bool
 }
 
 // chunkBytes is the decoded size of strip or tile i.
@@ -306,7 +306,7 @@ func (t *tiffFile) parseIFD(off uint64, first bool) (*page, error) {
 		case tPlanarConfig:
 			// With one sample per pixel both planar configurations store the same bytes.
 		case tResolutionUnit:
-			p.resUnit, p.hasUnits = uint16(v), true
+			p.resUnit = uint16(v)
 		case tPredictor:
 			p.predictor = uint16(v)
 		case tTileWidth:
