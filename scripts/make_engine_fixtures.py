@@ -181,6 +181,13 @@ def main():
              "reflect", 0.0, ndimage.gaussian_filter(F.astype(np.float64), 2.0, mode="reflect"),
              "scipy.ndimage.gaussian_filter")
 
+    # 61 taps on data ten times as far from zero as its range (values in [1000, 1100]):
+    # the hardest case for float32 accumulation.
+    G = add_volume("g", (24, 20, 18), offset=1000.0, scale=100.0)
+    add_case("gauss61offset/reflect", "g", {"kind": "separable", "x": list(g61), "y": list(g61), "z": list(g61)},
+             "reflect", 0.0, ndimage.gaussian_filter(G.astype(np.float64), 7.5, mode="reflect"),
+             "scipy.ndimage.gaussian_filter")
+
     manifest = {
         "generator": "scripts/make_engine_fixtures.py",
         "numpy": np.__version__, "scipy": scipy.__version__,
