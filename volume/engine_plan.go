@@ -15,11 +15,11 @@ type pass struct {
 	w      []float32
 	before int     // taps before the centre (after trimming zero end taps)
 	sum    float64 // Σ of the taps (for the constant extension of intermediate results)
-	// order lists the non-zero taps by increasing magnitude, the order in which the x
-	// and y passes add them: a partial sum then grows late, so fewer additions round at
-	// its full size (for a 61-tap Gaussian on data ten times as far from zero as its
-	// range this halves the error). The z pass adds taps from the ends inwards instead,
-	// which lets it read each ring slice once per group of outputs.
+	// order lists the non-zero taps by increasing magnitude, the order in which every
+	// pass adds them: a partial sum then grows late, so fewer additions round at its
+	// full size (for a 61-tap Gaussian on data ten times as far from zero as its range
+	// this halves the error). It depends on the taps alone, so every output voxel gets
+	// the same sequence of operations in any run.
 	order []int
 }
 
