@@ -10,4 +10,10 @@
 // bytes of the header's sample type; ToFloat32 and FromFloat32 move them to and from the
 // float32 working buffers of the filtering engine, rounding to nearest and clamping on the
 // way back to integer types.
+//
+// Filter is the engine: it applies 3D kernels, in the forms package tensor plans them
+// (direct taps, a sum of separable terms, a Tucker tree of 1D passes), as true
+// convolutions of the volume extended beyond its borders by an Edge rule, holding only
+// the few slices the kernels' depth needs. MemSource, GenSource and MemSink are
+// in-memory ends for tests, benchmarks and volumes built in code.
 package volume
