@@ -110,6 +110,10 @@ func previewAction(c *cli.Context) error {
 				return usageErrorf("--compare %s is %d×%d×%d voxels and %s %d×%d×%d: compared stacks must have the same size",
 					path, h.NX, h.NY, h.NZ, inPath, h0.NX, h0.NY, h0.NZ)
 			}
+			if h.Spacing != h0.Spacing || h.Unit != h0.Unit {
+				note(c, "note: %s has spacing %s and %s %s; both are drawn with %s's",
+					path, spacingText(h), inPath, spacingText(h0), inPath)
+			}
 		}
 		stacks = append(stacks, s)
 	}
@@ -263,6 +267,15 @@ func parsePercentiles(s string) (lo, hi float64, err error) {
 		return 0, 0, usageErrorf("--percentiles %q: want 0 ≤ LOW < HIGH ≤ 100", s)
 	}
 	return v[0], v[1], nil
+}
+
+// spacingText writes a header's spacing for people ("6 × 6 × 10 µm").
+func spacingText(h volume.Header) string {
+	u := displayUnit(h.Unit)
+	if u == "" {
+		u = "voxels (unknown)"
+	}
+	return fmt.Sprintf("%s × %s × %s %s", g(h.Spacing[0]), g(h.Spacing[1]), g(h.Spacing[2]), u)
 }
 
 // displayUnit spells a canonical unit for people ("um" → "µm").
