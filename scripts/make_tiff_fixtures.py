@@ -176,7 +176,18 @@ def main():
     # the channels as interleaved slices.
     a = np.zeros((2, 2, 6, 7), np.uint16)  # z, c, y, x
     tifffile.imwrite(os.path.join(OUT, "ij_two_channels.tif"), a, imagej=True, metadata={"axes": "ZCYX"})
-    manifest["unsupported"] = [{"file": "ij_two_channels.tif", "error": "2 channels"}]
+    # OME-TIFF (tifffile's ome=True): physical sizes in the OME-XML description; a
+    # two-channel file must be refused like the ImageJ one.
+    a = np.fromfile(os.path.join(OUT, "uint16.bin"), "<u2").reshape(NZ, NY, NX)
+    name = "u16_ome.tif"
+    tifffile.imwrite(os.path.join(OUT, name), a, ome=True, rowsperstrip=7,
+                     metadata={"axes": "ZYX", "PhysicalSizeX": 0.65, "PhysicalSizeY": 0.7,
+                               "PhysicalSizeZ": 2.5, "PhysicalSizeZUnit": "µm"})
+    add(name, "uint16", spacing=[0.65, 0.7, 2.5], unit="um")
+    tifffile.imwrite(os.path.join(OUT, "ome_two_channels.tif"), np.zeros((3, 2, 6, 7), np.uint16),
+                     ome=True, metadata={"axes": "ZCYX"})
+    manifest["unsupported"] = [{"file": "ij_two_channels.tif", "error": "2 channels"},
+                               {"file": "ome_two_channels.tif", "error": "2 channels"}]
 
     # A folder of single-page slices numbered without padding, so that name order
     # (slice_10 before slice_2) and number order differ.

@@ -64,8 +64,9 @@ type tiffFile struct {
 }
 
 // maxDescription bounds how much of an ImageDescription is read: tripass's own line is
-// short, and a description can be megabytes of someone else's XML.
-const maxDescription = 4096
+// short, OME-XML puts the Pixels element tripass needs near its start, and a
+// description can be megabytes of XML.
+const maxDescription = 64 << 10
 
 // readAt reads len(b) bytes at off; a short read is io.ErrUnexpectedEOF.
 func (t *tiffFile) readAt(b []byte, off uint64) error {

@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"regexp"
 	"strconv"
 	"strings"
 
@@ -195,6 +196,14 @@ func parse(ra io.ReaderAt, size int64, firstOnly bool, dec *decoder) (*Reader, e
 	if ij, ok := parseImageJ(p0.desc); ok && (ij.channels > 1 || ij.frames > 1) {
 		return nil, UnsupportedError(fmt.Sprintf("ImageJ hyperstack with %d channels and %d frames; tripass reads one channel at one time point (split it first)", max(ij.channels, 1), max(ij.frames, 1)))
 	}
+	if ome, ok := parseOME(p0.desc); ok {
+		if ome.images > 1 {
+			return nil, UnsupportedError(fmt.Sprintf("OME-TIFF with %d images (series); tripass reads one z-stack per file", ome.images))
+		}
+		if ome.sizeC > 1 || ome.sizeT > 1 {
+			return nil, UnsupportedError(fmt.Sprintf("OME-TIFF with %d channels and %d time points; tripass reads one channel at one time point (split it first)", max(ome.sizeC, 1), max(ome.sizeT, 1)))
+		}
+	}
 	r.hdr = volume.Header{NX: p0.width, NY: p0.height, NZ: len(r.pages), Type: p0.typ}
 	r.hdr.Spacing, r.hdr.Unit = spacingOf(p0)
 	if err := r.hdr.Validate(); err != nil {
@@ -329,12 +338,70 @@ func parseImageJ(desc string) (imageJMeta, bool) {
 	return m, true
 }
 
+// omeMeta is what tripass takes from OME-XML in the ImageDescription of an OME-TIFF
+// (Open Microscopy Environment data model, schema 2016-06): the attributes of the first
+// Pixels element. SizeC and SizeT above 1 mean channels or time points interleaved with
+// the z-slices; PhysicalSizeX/Y/Z are the spacing, each in its own unit attribute
+// (default µm); more than one Image element means several series in one file.
+type omeMeta struct {
+	spacing      [3]float64
+	unit         string // canonical unit of spacing; "" when no physical size is given
+	sizeC, sizeT int
+	images       int
+}
+
+var omeAttr = regexp.MustCompile(`([A-Za-z]+)="([^"]*)"`)
+
+func parseOME(desc string) (omeMeta, bool) {
+	var m omeMeta
+	if !strings.Contains(desc, "<OME") {
+		return m, false
+	}
+	m.images = strings.Count(desc, "<Image ")
+	i := strings.Index(desc, "<Pixels ")
+	if i < 0 {
+		return m, true
+	}
+	tag := desc[i:]
+	if j := strings.IndexByte(tag, '>'); j >= 0 {
+		tag = tag[:j]
+	}
+	attr := make(map[string]string)
+	for _, kv := range omeAttr.FindAllStringSubmatch(tag, -1) {
+		attr[kv[1]] = kv[2]
+	}
+	m.sizeC, _ = strconv.Atoi(attr["SizeC"])
+	m.sizeT, _ = strconv.Atoi(attr["SizeT"])
+	for i, axis := range []string{"X", "Y", "Z"} {
+		v, err := strconv.ParseFloat(attr["PhysicalSize"+axis], 64)
+		if err != nil || !(v > 0) || v > 1e300 {
+			continue
+		}
+		u := attr["PhysicalSize"+axis+"Unit"]
+		if u == "" {
+			u = "µm" // the schema's default
+		}
+		cu, err := volume.CanonicalUnit(u)
+		if err != nil || cu == "" {
+			continue
+		}
+		if m.unit == "" {
+			m.unit = cu
+		}
+		if v, err = volume.ConvertLength(v, cu, m.unit); err == nil {
+			m.spacing[i] = v
+		}
+	}
+	return m, true
+}
+
 // spacingOf derives the voxel spacing from page 0: x and y from XResolution and
 // YResolution (pixels per ResolutionUnit; TIFF 6.0 Section 8: 2 inch, the default, 3
 // centimetre), z and the unit from tripass's own description. The description's exact
 // decimal values win when they agree with the resolution tags to 1e-6; tags that
 // disagree (edited by another program) win over it. An ImageJ description supplies the
-// unit and z spacing the same way, and the unit of resolution tags that have none.
+// unit and z spacing the same way, and the unit of resolution tags that have none;
+// OME-XML's physical sizes, when given, are the spacing.
 func spacingOf(p *page) ([3]float64, string) {
 	dsp, dunit, dok := parseDescription(p.desc)
 	if ij, ok := parseImageJ(p.desc); ok && ij.unit != "" {
@@ -342,6 +409,9 @@ func spacingOf(p *page) ([3]float64, string) {
 		if p.hasRes && p.xres > 0 && p.yres > 0 && p.resUnit == resUnitNone {
 			return [3]float64{1 / p.xres, 1 / p.yres, ij.zSpacing}, ij.unit
 		}
+	}
+	if ome, ok := parseOME(p.desc); ok && ome.unit != "" {
+		return ome.spacing, ome.unit
 	}
 	var sp [3]float64
 	unit := ""
