@@ -431,3 +431,38 @@ func TestSelectKthAgreesWithSorting(t *testing.T) {
 		}
 	}
 }
+
+// TestNaNIsDrawnBlack checks that NaN voxels (a float stack with holes) leave the
+// contrast window alone and come out black.
+func TestNaNIsDrawnBlack(t *testing.T) {
+	m := newMem(8, 8, 8, [3]float64{1, 1, 1}, "um")
+	for i := range m.v {
+		m.v[i] = float32(100 + i%7)
+	}
+	nan := float32(math.NaN())
+	for x := 0; x < 8; x++ {
+		for y := 0; y < 8; y++ {
+			m.set(x, y, 4, nan) // the whole centre slice
+		}
+	}
+	s, err := ReadSections(m, [3]int{4, 4, 4}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	w, err := ContrastWindow(s, 0, 100)
+	if err != nil || w.Lo != 100 || w.Hi != 106 {
+		t.Fatalf("window %+v (%v), want 100 to 106 from the finite values", w, err)
+	}
+	img, lay, err := Render([]*Sections{s}, Options{Width: 64})
+	if err != nil {
+		t.Fatal(err)
+	}
+	xy := lay.Panels[0][0]
+	for y := xy.Min.Y; y < xy.Max.Y; y++ {
+		for x := xy.Min.X; x < xy.Max.X; x++ {
+			if g := img.GrayAt(x, y).Y; g != 0 {
+				t.Fatalf("NaN slice drawn with grey %d at (%d,%d), want black", g, x, y)
+			}
+		}
+	}
+}
