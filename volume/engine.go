@@ -1,7 +1,6 @@
 package volume
 
 import (
-	"encoding/binary"
 	"errors"
 	"fmt"
 	"io"
@@ -964,13 +963,10 @@ func (e *engine) decode(raw *Slice, b *inBuf) {
 		line := d[(y+e.padT)*S : (y+e.padT+1)*S]
 		vals := line[e.padL : e.padL+nx]
 		if raw.Type == Float32 {
-			// The common case in one pass: decode and look for NaN and ±Inf, the
-			// values whose exponent bits are all ones.
-			src := raw.Data[y*rb : (y+1)*rb]
-			for i := range vals {
-				u := binary.LittleEndian.Uint32(src[4*i:])
-				vals[i] = math.Float32frombits(u)
-				if u&0x7f800000 == 0x7f800000 {
+			f32LE(vals, raw.Data[y*rb:(y+1)*rb])
+			// NaN and ±Inf are the values whose exponent bits are all ones.
+			for _, v := range vals {
+				if u := math.Float32bits(v); u&0x7f800000 == 0x7f800000 {
 					if u&0x007fffff != 0 {
 						b.nan++
 					} else {
@@ -1038,8 +1034,13 @@ func (e *engine) writer(dst SliceWriter) {
 		if e.werr == nil {
 			var clamped int
 			for y := 0; y < e.ny; y++ {
+				vals := o.data[y*e.S : y*e.S+e.nx]
+				if t == Float32 {
+					putF32LE(s.Data[y*rb:(y+1)*rb], vals)
+					continue
+				}
 				row := Slice{NX: e.nx, NY: 1, Type: t, Data: s.Data[y*rb : (y+1)*rb]}
-				clamped += row.FromFloat32(o.data[y*e.S : y*e.S+e.nx])
+				clamped += row.FromFloat32(vals)
 			}
 			e.clamped += int64(clamped)
 			if err := dst.WriteSlice(s); err != nil {

@@ -1,6 +1,7 @@
 package volume
 
 import (
+	"encoding/binary"
 	"math"
 	"math/rand/v2"
 	"testing"
@@ -49,4 +50,23 @@ func benchAxpy(b *testing.B, f func(dst, src []float32, w float32)) {
 func BenchmarkAxpy(b *testing.B) {
 	b.Run("engine", func(b *testing.B) { benchAxpy(b, axpy) })
 	b.Run("generic", func(b *testing.B) { benchAxpy(b, axpyGeneric) })
+}
+
+// TestF32LE checks the float32 fast paths against encoding/binary.
+func TestF32LE(t *testing.T) {
+	vals := []float32{0, 1, -2.5, float32(math.Inf(1)), float32(math.NaN()), math.SmallestNonzeroFloat32, 3e38}
+	b := make([]byte, 4*len(vals))
+	putF32LE(b, vals)
+	for i, v := range vals {
+		if got := binary.LittleEndian.Uint32(b[4*i:]); got != math.Float32bits(v) {
+			t.Errorf("putF32LE %d: %#x, want %#x", i, got, math.Float32bits(v))
+		}
+	}
+	back := make([]float32, len(vals))
+	f32LE(back, b)
+	for i := range vals {
+		if math.Float32bits(back[i]) != math.Float32bits(vals[i]) {
+			t.Errorf("f32LE %d: %v, want %v", i, back[i], vals[i])
+		}
+	}
 }

@@ -42,7 +42,7 @@ func (m *MemSource) ReadSlice(dst *Slice) error {
 	}
 	n := m.h.SliceLen()
 	dst.Reset(m.h.NX, m.h.NY, m.h.Type)
-	dst.FromFloat32(m.data[m.z*n : (m.z+1)*n])
+	encodeFloat32(dst, m.data[m.z*n:(m.z+1)*n])
 	m.z++
 	return nil
 }
@@ -95,7 +95,7 @@ func (g *GenSource) ReadSlice(dst *Slice) error {
 	}
 	g.gen(g.z, g.buf)
 	dst.Reset(g.h.NX, g.h.NY, g.h.Type)
-	dst.FromFloat32(g.buf)
+	encodeFloat32(dst, g.buf)
 	g.z++
 	return nil
 }
@@ -150,3 +150,12 @@ func (s *MemSink) Close() error { s.Closed = true; return nil }
 
 // Abort records that the sink was discarded.
 func (s *MemSink) Abort() error { s.Aborted = true; return nil }
+
+// encodeFloat32 is dst.FromFloat32(src), with a plain copy for float32 slices.
+func encodeFloat32(dst *Slice, src []float32) {
+	if dst.Type == Float32 {
+		putF32LE(dst.Data, src)
+		return
+	}
+	dst.FromFloat32(src)
+}
