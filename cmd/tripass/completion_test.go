@@ -126,6 +126,16 @@ func TestCompletionAnswers(t *testing.T) {
 	}
 }
 
+// buildTripass builds the command from this package into a temporary folder.
+func buildTripass(t *testing.T) string {
+	t.Helper()
+	bin := filepath.Join(t.TempDir(), "tripass")
+	if msg, err := exec.Command("go", "build", "-o", bin, ".").CombinedOutput(); err != nil {
+		t.Skipf("cannot build tripass here: %v\n%s", err, msg)
+	}
+	return bin
+}
+
 // TestBashCompletionEndToEnd loads the bash script into bash and completes words with
 // a tripass built from this package.
 func TestBashCompletionEndToEnd(t *testing.T) {
@@ -136,10 +146,7 @@ func TestBashCompletionEndToEnd(t *testing.T) {
 	if err != nil {
 		t.Skip("no bash")
 	}
-	bin := filepath.Join(t.TempDir(), "tripass")
-	if msg, err := exec.Command("go", "build", "-o", bin, ".").CombinedOutput(); err != nil {
-		t.Skipf("cannot build tripass here: %v\n%s", err, msg)
-	}
+	bin := buildTripass(t)
 	script := `source <("$BIN" completion bash)
 try() { COMP_WORDS=("$BIN" "$@"); COMP_CWORD=$#; _tripass_words; echo "${COMPREPLY[*]}"; }
 try sm

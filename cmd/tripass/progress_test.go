@@ -3,6 +3,7 @@ package main
 import (
 	"encoding/json"
 	"os"
+	"os/exec"
 	"path/filepath"
 	"strings"
 	"testing"
@@ -140,5 +141,40 @@ func TestJSONProgressOfAShard(t *testing.T) {
 	}
 	if sum.Total != 6 || sum.Done != 6 || sum.Complete == nil || !*sum.Complete || sum.Voxels != 6*30*26 {
 		t.Errorf("summary %+v: want 6 of 6 slices, complete", sum)
+	}
+}
+
+// TestProgressBarOnATerminal runs a filter under util-linux's script(1), which gives
+// it a terminal, and checks the bar is drawn there: slices done, MB/s and time.
+func TestProgressBarOnATerminal(t *testing.T) {
+	if testing.Short() {
+		t.Skip("builds the command")
+	}
+	scriptCmd, err := exec.LookPath("script")
+	if err != nil {
+		t.Skip("no script(1) to provide a terminal")
+	}
+	bin := buildTripass(t)
+	dir := t.TempDir()
+	stack := writeStack(t, dir, "rock.tif", phantom.RockCore(30, 26, 24, [3]float64{6, 6, 10}, 1))
+	run := func(extra string) string {
+		line := bin + " smooth " + stack + " " + filepath.Join(dir, "s.tif") + " --sigma 1 --overwrite" + extra
+		out, err := exec.Command(scriptCmd, "-qec", line, "/dev/null").CombinedOutput()
+		if err != nil {
+			t.Fatalf("%s: %v\n%s", line, err, out)
+		}
+		return string(out)
+	}
+	out := run("")
+	for _, want := range []string{"smooth: slice 24/24", "100%", "MB/s", "wrote "} {
+		if !strings.Contains(out, want) {
+			t.Errorf("terminal output lacks %q:\n%q", want, out)
+		}
+	}
+	if out := run(" --quiet"); strings.Contains(out, "slice") || strings.Contains(out, "wrote") {
+		t.Errorf("--quiet on a terminal still printed %q", out)
+	}
+	if out := run(" --log json --quiet"); !strings.Contains(out, `"event":"summary"`) || strings.Contains(out, "MB/s)") {
+		t.Errorf("--log json on a terminal: %q; want JSON lines and no bar", out)
 	}
 }
