@@ -9,6 +9,7 @@
 #
 #   scripts/bench_shards.sh                 # SIZE=256 SIGMA=2 REPS=3
 #   SIZE=384 SIGMA=3 scripts/bench_shards.sh
+#   TMPDIR=/dev/shm scripts/bench_shards.sh   # files in memory: no disk in the way
 #
 # The stack is the synthetic rock core of 'tripass demo', converted to float32.
 set -euo pipefail
@@ -19,7 +20,7 @@ SIGMA=${SIGMA:-2}
 REPS=${REPS:-3}
 fmt="%e %U %S %M"
 [ -x /usr/bin/time ] || { echo "bench_shards: needs /usr/bin/time (Debian package 'time')" >&2; exit 1; }
-work=$(mktemp -d /tmp/tripass-bench-shards.XXXXXX)
+work=$(mktemp -d "${TMPDIR:-/tmp}/tripass-bench-shards.XXXXXX")
 trap 'rm -rf "$work"' EXIT
 go build -buildvcs=false -o "$work/tripass" ./cmd/tripass
 tp="$work/tripass"
