@@ -27,8 +27,6 @@ step() { # print the command as the page shows it, then run it
 
 # The demo writes a 192×192×128 uint16 rock core of 6×6×10 µm voxels (and runs its own
 # steps, which this script repeats explicitly below).
-# (The demo's kernel step does not replace an existing kernel file: clear it first.)
-rm -f "$work/tilted-psf.npy"
 "$bin" demo "$work" --quiet >/dev/null
 cd "$work"
 
