@@ -1034,13 +1034,7 @@ func (e *engine) writer(dst SliceWriter) {
 		if e.werr == nil {
 			var clamped int
 			for y := 0; y < e.ny; y++ {
-				vals := o.data[y*e.S : y*e.S+e.nx]
-				if t == Float32 {
-					putF32LE(s.Data[y*rb:(y+1)*rb], vals)
-					continue
-				}
-				row := Slice{NX: e.nx, NY: 1, Type: t, Data: s.Data[y*rb : (y+1)*rb]}
-				clamped += row.FromFloat32(vals)
+				clamped += encodeRow(s.Data[y*rb:(y+1)*rb], t, o.data[y*e.S:y*e.S+e.nx])
 			}
 			e.clamped += int64(clamped)
 			if err := dst.WriteSlice(s); err != nil {

@@ -34,3 +34,70 @@ func putF32LE(dst []byte, src []float32) {
 		binary.LittleEndian.PutUint32(dst[4*i:], math.Float32bits(v))
 	}
 }
+
+// encodeRow writes src into dst as samples of type t, exactly as Slice.FromFloat32 does
+// (round half away from zero, clamp, NaN to 0, counting values beyond the range and
+// NaNs), with loops specialised for the common types; the rest go through
+// FromFloat32. It returns the number of clamped values.
+func encodeRow(dst []byte, t SampleType, src []float32) (clamped int) {
+	switch t {
+	case Float32:
+		putF32LE(dst, src)
+		return 0
+	case Uint8:
+		dst = dst[:len(src)]
+		for i, v := range src {
+			x, c := roundUnsigned(v, math.MaxUint8)
+			dst[i] = uint8(x)
+			clamped += c
+		}
+		return clamped
+	case Uint16:
+		dst = dst[:2*len(src)]
+		for i, v := range src {
+			x, c := roundUnsigned(v, math.MaxUint16)
+			binary.LittleEndian.PutUint16(dst[2*i:], uint16(x))
+			clamped += c
+		}
+		return clamped
+	case Int16:
+		dst = dst[:2*len(src)]
+		for i, v := range src {
+			var x int16
+			f := float64(v)
+			switch {
+			case f != f:
+				clamped++
+			case f < math.MinInt16:
+				x = math.MinInt16
+				clamped++
+			case f > math.MaxInt16:
+				x = math.MaxInt16
+				clamped++
+			case f < 0:
+				x = int16(f - 0.5) // truncation towards zero: round half away from zero
+			default:
+				x = int16(f + 0.5)
+			}
+			binary.LittleEndian.PutUint16(dst[2*i:], uint16(x))
+		}
+		return clamped
+	}
+	s := Slice{NX: len(src), NY: 1, Type: t, Data: dst}
+	return s.FromFloat32(src)
+}
+
+// roundUnsigned rounds v half away from zero into [0, hi], reporting 1 when v was
+// beyond the range or NaN. float64(v) + 0.5 is exact for every float32 in range.
+func roundUnsigned(v float32, hi float64) (uint32, int) {
+	f := float64(v)
+	switch {
+	case f != f:
+		return 0, 1
+	case f < 0:
+		return 0, 1
+	case f > hi:
+		return uint32(hi), 1
+	}
+	return uint32(f + 0.5), 0
+}

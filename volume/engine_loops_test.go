@@ -70,3 +70,28 @@ func TestF32LE(t *testing.T) {
 		}
 	}
 }
+
+// TestEncodeRowMatchesFromFloat32: the engine's output encoders give the bytes and the
+// clamp counts of Slice.FromFloat32 for every sample type, on values at every rounding
+// and clamping boundary.
+func TestEncodeRowMatchesFromFloat32(t *testing.T) {
+	vals := []float32{0, 0.49999997, 0.5, 0.50000006, 1.5, 2.5, -0.5, -0.49999997, -1.5, -2.5,
+		254.5, 255, 255.49998, 255.5, 256, 65534.5, 65535, 65535.4, 65535.5, 65536,
+		-32768, -32768.4, -32768.5, -32769, 32767, 32767.4, 32767.5, 32768,
+		float32(math.NaN()), float32(math.Inf(1)), float32(math.Inf(-1)), 1e30, -1e30, 3.3, -7.7}
+	for _, typ := range SampleTypes {
+		want := NewSlice(len(vals), 1, typ)
+		wc := want.FromFloat32(vals)
+		got := make([]byte, len(want.Data))
+		gc := encodeRow(got, typ, vals)
+		if gc != wc {
+			t.Errorf("%v: %d clamped, want %d", typ, gc, wc)
+		}
+		for i := range vals {
+			sz := typ.Size()
+			if string(got[i*sz:(i+1)*sz]) != string(want.Data[i*sz:(i+1)*sz]) {
+				t.Errorf("%v: %v encoded as %x, want %x", typ, vals[i], got[i*sz:(i+1)*sz], want.Data[i*sz:(i+1)*sz])
+			}
+		}
+	}
+}
