@@ -116,11 +116,17 @@ func (j *streamJob) run(c *cli.Context) (volume.FilterStats, error) {
 		if errors.Is(err, errInterrupted) {
 			return st, &exitError{ExitFailure, fmt.Errorf("%s: interrupted; the partial output was removed", j.outPath)}
 		}
+		if werr := writeFailure(j.outPath, j.z0+done+w.written, err); werr != nil {
+			return st, werr
+		}
 		return st, streamError(j.inPath, j.outPath, err)
 	}
 	if err := sink.Close(); err != nil {
 		sink.Abort()
 		rs.discard()
+		if werr := writeFailure(j.outPath, j.z1-1, err); werr != nil {
+			return st, werr
+		}
 		return st, err
 	}
 	rs.discard()
