@@ -302,8 +302,9 @@ type engine struct {
 	curOuts   [][]float32 // the group's output slices
 	outs      []*outBuf
 
-	work chan task
-	wg   sync.WaitGroup
+	work      chan task
+	wg        sync.WaitGroup
+	nextBlock atomic.Int64 // next block of rows to take in the current phase
 
 	inFree  chan *inBuf
 	inCh    chan *inBuf
@@ -652,6 +653,7 @@ func (e *engine) runPhase(ph phase) {
 		e.phase(ph, 0)
 		return
 	}
+	e.nextBlock.Store(0)
 	e.wg.Add(e.threads)
 	for w := range e.threads {
 		e.work <- task{ph, w}
@@ -659,22 +661,39 @@ func (e *engine) runPhase(ph phase) {
 	e.wg.Wait()
 }
 
-// phase runs phase ph on worker w's blocks of rows.
+// phase runs phase ph on blocks of rows taken in turn by worker w (w's scratch). The
+// blocks are the same whoever takes them, so the output does not depend on the number
+// of workers; taking them in turn keeps both cores busy when the reader or the writer
+// borrows one.
 func (e *engine) phase(ph phase, w int) {
-	b0, b1 := w*e.nblocks/e.threads, (w+1)*e.nblocks/e.threads
-	for b := b0; b < b1; b++ {
-		y0 := b * e.block
-		y1 := min(e.ny, y0+e.block)
-		switch ph {
-		case phaseX:
-			e.blockX(y0, y1)
-		case phaseY:
-			e.blockY(y0, y1)
-		case phaseYX:
-			e.blockYX(w, y0, y1)
-		case phaseZ:
-			e.blockZ(w, y0, y1)
+	if e.threads == 1 {
+		for b := range e.nblocks {
+			e.block1(ph, w, b)
 		}
+		return
+	}
+	for {
+		b := int(e.nextBlock.Add(1)) - 1
+		if b >= e.nblocks {
+			return
+		}
+		e.block1(ph, w, b)
+	}
+}
+
+// block1 runs phase ph on block b of rows with worker w's scratch.
+func (e *engine) block1(ph phase, w, b int) {
+	y0 := b * e.block
+	y1 := min(e.ny, y0+e.block)
+	switch ph {
+	case phaseX:
+		e.blockX(y0, y1)
+	case phaseY:
+		e.blockY(y0, y1)
+	case phaseYX:
+		e.blockYX(w, y0, y1)
+	case phaseZ:
+		e.blockZ(w, y0, y1)
 	}
 }
 
