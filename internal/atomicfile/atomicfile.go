@@ -34,6 +34,13 @@ func Create(target string, overwrite bool) (*File, error) {
 	if err != nil {
 		return nil, err
 	}
+	// CreateTemp makes the file private (0600); an output gets the mode an ordinary
+	// new file would have.
+	if err := f.Chmod(os.FileMode(0o666 &^ processUmask())); err != nil {
+		f.Close()
+		os.Remove(f.Name())
+		return nil, err
+	}
 	return &File{File: f, target: target}, nil
 }
 
@@ -91,6 +98,10 @@ func CreateDir(target string, overwrite bool) (*Dir, error) {
 	}
 	p, err := os.MkdirTemp(filepath.Dir(target), TempPrefix+filepath.Base(target)+"-*")
 	if err != nil {
+		return nil, err
+	}
+	if err := os.Chmod(p, os.FileMode(0o777&^processUmask())); err != nil {
+		os.Remove(p)
 		return nil, err
 	}
 	return &Dir{Path: p, target: target}, nil

@@ -90,3 +90,25 @@ func TestEmptyFolderIsNoObstacle(t *testing.T) {
 		t.Error(err)
 	}
 }
+
+func TestOutputsGetOrdinaryModes(t *testing.T) {
+	dir := t.TempDir()
+	f, err := Create(filepath.Join(dir, "a.tif"), false)
+	if err != nil {
+		t.Fatal(err)
+	}
+	f.Commit()
+	d, err := CreateDir(filepath.Join(dir, "s"), false)
+	if err != nil {
+		t.Fatal(err)
+	}
+	d.Commit()
+	u := os.FileMode(processUmask())
+	// expected: 0666 and 0777 less the umask, as open(2) and mkdir(2) give (POSIX).
+	if st, _ := os.Stat(filepath.Join(dir, "a.tif")); st.Mode().Perm() != 0o666&^u {
+		t.Errorf("file mode %v, want %v", st.Mode().Perm(), 0o666&^u)
+	}
+	if st, _ := os.Stat(filepath.Join(dir, "s")); st.Mode().Perm() != 0o777&^u {
+		t.Errorf("folder mode %v, want %v", st.Mode().Perm(), 0o777&^u)
+	}
+}
