@@ -105,14 +105,16 @@ type FilterStats struct {
 // Memory. The buffers hold about leaves·(kz + 4) slices for CP and Tucker plans (kz + 1
 // input slices for direct plans) plus a few slices in flight, where kz is the kernels'
 // depth; nothing grows with the number of slices. (Output slices are formed four at a
-// time, so that the z pass reads each ring slice once per four outputs.) Near the ends of the stack the edge extension along z needs slices again; the
-// ring keeps them (the schedule is worked out in advance, so the ring is as deep as the
-// worst case needs and no slice is read twice). Periodic edges need the last slices before
-// the first output: Filter keeps the first and last kz/2 slices' results apart, and reads
-// the last ones first, seeking with SliceSeeker; a source that cannot seek is first
-// copied to a temporary file (FilterOptions.TempDir), which is then read twice — that
-// costs disk space the size of the input but no memory. A stack that is not deeper than
-// the kernel is held whole (it is small).
+// time, so that the z pass reads each ring slice from memory once per four outputs.)
+// Near the ends of the stack the edge extension along z needs slices again; the ring
+// keeps them (the schedule is worked out in advance, so the ring is as deep as the worst
+// case needs and no slice is read twice). Periodic edges need the last slices before the
+// first output: Filter keeps the first and last kz/2 slices' results apart and reads the
+// last ones first, seeking with SliceSeeker; a source that cannot seek is first copied
+// to a temporary file (FilterOptions.TempDir), which is then read twice — that costs
+// disk space the size of the input but no memory. A stack not much deeper than the
+// kernel is held whole (it is small). FilterStats.PeakBufferBytes reports the buffers'
+// size and FilterOptions.MaxBufferBytes bounds it.
 //
 // Edges. The extension along each axis is Edge, applied exactly as a 3D extension of the
 // volume, for any kernel size (indices fold as often as needed, as SciPy's ndimage does).
@@ -133,8 +135,8 @@ type FilterStats struct {
 // package tests measure the largest difference from SciPy's float64 results at about
 // 3e-7 of the data range for kernels of 3 to 61 taps per axis, and at 1.5e-6 (σ = 2) and
 // 4e-6 (σ = 7.5, 61 taps) on data whose offset from zero is ten times its range, within
-// the 1e-5 that tripass promises. Taps are added smallest first
-// (in every pass), which halves the error of the latter case.
+// the 1e-5 that tripass promises. Every pass adds its taps smallest first, which halves
+// the error of the latter case.
 //
 // NaN and infinite input voxels are counted in the stats and propagate through the
 // arithmetic (a NaN spreads over the kernel's support).
