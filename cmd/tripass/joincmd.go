@@ -23,7 +23,8 @@ var joinCommand = &cli.Command{
 	ArgsUsage: "[PARTS...] OUT",
 	Description: `The tasks of a job run with --shard I/N and a file output OUT (.tif, .raw, .nii,
 .nii.gz) each write a part file OUT.part-I-of-N.tif. 'tripass join OUT' finds OUT's
-parts beside it; 'tripass join PARTS... OUT' takes them as listed (in any order).
+parts beside it; 'tripass join PARTS... OUT' takes them as listed (in any order), and
+OUT may then be of another format than the tasks were given (a folder, say).
 Before writing anything, join checks that every part is readable and holds the slices
 its record says, that all come from one job (same input, command, parameters and
 number of tasks), and that together they cover every output slice exactly once. It
@@ -71,10 +72,7 @@ func joinAction(c *cli.Context) error {
 	if err != nil {
 		return err
 	}
-	if k == kindFolder {
-		if len(args) != 1 {
-			return usageErrorf("join of a slice folder takes only the folder, got %d arguments", len(args))
-		}
+	if k == kindFolder && len(args) == 1 {
 		return joinFolder(c, out)
 	}
 	paths := args[:len(args)-1]

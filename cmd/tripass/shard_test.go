@@ -460,6 +460,24 @@ func TestShardFolderGuards(t *testing.T) {
 	}
 }
 
+// TestShardPartGuards: a rerun of a task replaces its part; a part of another job under
+// the same name is kept unless --overwrite; parts listed explicitly may be joined into
+// another format.
+func TestShardPartGuards(t *testing.T) {
+	dir := shmTempDir(t)
+	in := shardVolume(t, dir)
+	out := filepath.Join(dir, "o.tif")
+	p := shardParts(t, in, out, 2)
+	shardParts(t, in, out, 2) // the same job again
+	code, _, errs := runCLI(t, "smooth", in, out, "--sigma", "3", "--shard", "1/2", "-q")
+	if code != ExitUsage || !strings.Contains(errs, "another job") {
+		t.Fatalf("part of another job: exit %d, %q", code, errs)
+	}
+	mustRun(t, "join", p[1], p[0], filepath.Join(dir, "joined")+"/", "-q")
+	mustRun(t, "smooth", in, filepath.Join(dir, "whole")+"/", "--sigma", "1", "-q")
+	foldersEqual(t, filepath.Join(dir, "joined"), filepath.Join(dir, "whole"))
+}
+
 // TestShardHelperProcess is not a test: TestShardsAsProcesses runs the test binary as
 // tripass through it.
 func TestShardHelperProcess(t *testing.T) {
