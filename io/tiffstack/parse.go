@@ -464,20 +464,22 @@ func (t *tiffFile) fieldBytes(f *field, dst []byte) error {
 
 // firstUint returns the first value of an integer field.
 func (t *tiffFile) firstUint(f *field) (uint64, error) {
-	var b [8]byte
-	sz := sizeOfType(f.typ)
-	if err := t.fieldBytes(f, b[:sz]); err != nil {
-		return 0, err
+	b := f.value[:] // inline values need no read (and no allocation)
+	if !f.inline {
+		b = make([]byte, 8)
+		if err := t.readAt(b[:sizeOfType(f.typ)], f.offset); err != nil {
+			return 0, err
+		}
 	}
 	switch f.typ {
 	case dtByte, dtUndefined:
 		return uint64(b[0]), nil
 	case dtShort:
-		return uint64(t.order.Uint16(b[:])), nil
+		return uint64(t.order.Uint16(b)), nil
 	case dtLong, dtIFD:
-		return uint64(t.order.Uint32(b[:])), nil
+		return uint64(t.order.Uint32(b)), nil
 	case dtLong8, dtIFD8:
-		return t.order.Uint64(b[:]), nil
+		return t.order.Uint64(b), nil
 	}
 	return 0, FormatError(fmt.Sprintf("field type %d where an unsigned integer is expected", f.typ))
 }
