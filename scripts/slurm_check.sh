@@ -134,27 +134,41 @@ say "Slurm $(sinfo -V | awk '{print $2}') up on $host: $cpus CPUs, ${mem} MB"
 # 4. tripass and a synthetic stack (a porous rock core of our own), as float32.
 go build -buildvcs=false -o "$work/tripass" ./cmd/tripass
 export TRIPASS="$work/tripass"
-"$TRIPASS" demo "$work/demo" --size 96,80,37 -q >/dev/null 2>&1 || "$TRIPASS" demo "$work/demo" --size 96,80,37 >/dev/null
+"$TRIPASS" demo "$work/demo" --size 96,80,37 -q >"$work/demo.log" 2>&1 || { cat "$work/demo.log"; exit 1; }
 in="$work/core.tif"
 "$TRIPASS" convert "$work/demo/rock-core.tif" "$in" --type float32 -q
 
 # 5. For each output kind: the whole run, the array, the join, the comparison.
+# submit runs sbatch --wait with a time limit. A job that never started within it is
+# Slurm's problem here (exit 77); one that started and failed or hung is tripass's.
+submit() {
+  local what=$1; shift
+  local status=0
+  (cd "$work" && timeout 600 sbatch --wait --export=ALL "$@") >/dev/null 2>"$work/sbatch.err" || status=$?
+  [ "$status" -eq 0 ] && return 0
+  if [ -z "$(ls -A "$work/logs")" ]; then
+    squeue 2>/dev/null || true
+    skip "the $what never ran under Slurm (sbatch status $status: $(tr '\n' ' ' <"$work/sbatch.err"))"
+  fi
+  say "the $what failed (sbatch status $status):"
+  cat "$work/sbatch.err" "$work"/logs/* >&2 || true
+  return 1
+}
 check() {
   local out=$1; shift
   local whole=$1; shift
   "$TRIPASS" "$@" "$in" "$whole" -q
-  (cd "$work" && sbatch --wait --array=1-"$N" --output="$work/logs/%A_%a.out" --export=ALL \
-    scripts_cluster/tripass-array.sbatch "$1" "$in" "$out" "${@:2}" -q) >/dev/null ||
-    { say "the array job failed:"; cat "$work"/logs/*.out; return 1; }
-  (cd "$work" && sbatch --wait --output="$work/logs/join-%j.out" --export=ALL \
-    scripts_cluster/tripass-join.sbatch "$out") >/dev/null ||
-    { say "the join job failed:"; cat "$work"/logs/join-*.out; return 1; }
+  rm -rf "$work/logs" && mkdir "$work/logs"
+  submit "array job" --array=1-"$N" --output="$work/logs/%A_%a.out" \
+    scripts_cluster/tripass-array.sbatch "$1" "$in" "$out" "${@:2}" -q
+  parts=$(ls "$work/logs" | wc -l)
+  submit "join job" --output="$work/logs/join-%j.out" scripts_cluster/tripass-join.sbatch "$out"
   if [ -d "$whole" ]; then
     diff -r "$whole" "$out" >/dev/null || { say "FAIL: $out differs from the whole run $whole"; return 1; }
   else
     cmp "$whole" "$out" || { say "FAIL: $out differs from the whole run $whole"; return 1; }
   fi
-  say "ok: $* in $N Slurm tasks + join = the whole run, byte for byte ($(du -sk "$out" | cut -f1) KiB)"
+  say "ok: $* in $parts Slurm tasks + join = the whole run, byte for byte ($(du -sk "$out" | cut -f1) KiB)"
 }
 cp -r scripts/cluster "$work/scripts_cluster"
 check "$work/smooth.tif" "$work/smooth-whole.tif" smooth --sigma 1.5 --edge reflect --compress lzw
