@@ -23,7 +23,7 @@ Examples:
    tripass convert stack.tif stack.raw --type float32
    tripass convert scan.raw scan.tif --raw-size 512,512,300 --raw-type int16 --raw-endian big --spacing 0.1,0.1,0.1mm`,
 	Flags: append(append([]cli.Flag{
-		&cli.StringFlag{Name: "type", Usage: "sample type of OUT (uint8, uint16, int16, uint32, int32, float32, float64); default: IN's"},
+		&cli.StringFlag{Name: "type", Usage: "sample `TYPE` of OUT: uint8, uint16, int16, uint32, int32, float32 or float64 (default: IN's type)"},
 		flagQuiet, flagLog,
 	}, inputFlags()...), append(outputFlags(), shardFlags()...)...),
 	Action: convertAction,

@@ -28,7 +28,7 @@ Example:
    tripass demo /tmp/tripass-demo --size 256,256,160`,
 	Flags: []cli.Flag{
 		&cli.StringFlag{Name: "size", Value: "192,192,128", Usage: "size of the synthetic stack in voxels, `NX,NY,NZ`"},
-		&cli.Uint64Flag{Name: "seed", Value: 1, Usage: "seed of the synthetic scene (the same seed gives the same stack)"},
+		&cli.Uint64Flag{Name: "seed", Value: 1, Usage: "`SEED` of the synthetic scene (the same seed gives the same stack)"},
 		flagQuiet,
 	},
 	Action: demoAction,

@@ -15,30 +15,37 @@ import (
 var (
 	flagEdge = &cli.StringFlag{
 		Name:     "edge",
-		Category: "Filtering",
+		Category: "Filter",
 		Value:    "symmetric",
-		Usage: "how the volume is extended beyond its faces: symmetric (… c b a | a b c …), " +
+		Usage: "`MODE` of extending the volume beyond its faces: symmetric (… c b a | a b c …), " +
 			"reflect (… c b | a b c …), replicate (… a a | a b …), periodic, or constant (--fill)",
 	}
 	flagFill = &cli.Float64Flag{
 		Name:     "fill",
-		Category: "Filtering",
-		Usage:    "value outside the volume with --edge constant, in the input's intensity units",
+		Category: "Filter",
+		Usage:    "`VALUE` outside the volume with --edge constant, in the input's intensity units",
 	}
 	flagThreads = &cli.IntFlag{
 		Name:     "threads",
-		Category: "Filtering",
-		Usage:    "worker threads (0: all cores)",
+		Category: "Filter",
+		Usage:    "`N` worker threads (0: all cores)",
 	}
-	flagOutType = &cli.StringFlag{
-		Name:     "type",
-		Category: "Output",
-		Usage:    "sample type of OUT (uint8 … float64); default: the input's for smoothing, float32 otherwise",
-	}
+	flagOutType = &cli.StringFlag{Name: "type"} // its usage differs per command: see outTypeFlag
 )
 
-func filterFlags(own ...cli.Flag) []cli.Flag {
-	fl := append(own, flagEdge, flagFill, flagThreads, flagOutType, flagQuiet, flagLog)
+// outTypeFlag is --type with the default of the command it belongs to.
+func outTypeFlag(def string) cli.Flag {
+	return &cli.StringFlag{
+		Name:     flagOutType.Name,
+		Category: "Output",
+		Usage:    "sample `TYPE` of OUT: uint8, uint16, int16, uint32, int32, float32 or float64 (default: " + def + ")",
+	}
+}
+
+// filterFlags lists a filtering command's flags: its own, then the shared ones. Commands
+// that write float32 unless told otherwise pass "float32" as outDefault.
+func filterFlags(outDefault string, own ...cli.Flag) []cli.Flag {
+	fl := append(own, flagEdge, flagFill, flagThreads, outTypeFlag(outDefault), flagQuiet, flagLog)
 	fl = append(fl, inputFlags()...)
 	fl = append(fl, outputFlags()...)
 	return append(fl, shardFlags()...)
@@ -170,7 +177,7 @@ Examples:
    tripass smooth core.tif core-smooth.tif --sigma 12um
    tripass smooth stack.tif out.tif --sigma 1,1,0.3
    tripass smooth stack.tif out.tif --box 3 --edge replicate`,
-	Flags: filterFlags(
+	Flags: filterFlags("the input's type",
 		&cli.StringFlag{Name: "sigma", Category: "Filter", Usage: "Gaussian standard deviation `S` or X,Y,Z; in voxels, or with a unit (e.g. 2um)"},
 		&cli.StringFlag{Name: "box", Category: "Filter", Usage: "mean over a box of `N` or X,Y,Z voxels (odd sizes)"},
 	),
@@ -230,10 +237,10 @@ Examples:
    tripass gradient core.tif grad.tif
    tripass gradient core.tif gz.tif --component z --physical
    tripass gradient stack.tif grad.tif --operator gaussian --sigma 1.5um`,
-	Flags: filterFlags(
-		&cli.StringFlag{Name: "operator", Category: "Filter", Value: "sobel", Usage: "sobel or gaussian"},
+	Flags: filterFlags("float32",
+		&cli.StringFlag{Name: "operator", Category: "Filter", Value: "sobel", Usage: "derivative `OPERATOR`: sobel or gaussian"},
 		&cli.StringFlag{Name: "sigma", Category: "Filter", Usage: "Gaussian standard deviation `S` or X,Y,Z for --operator gaussian; voxels or with a unit"},
-		&cli.StringFlag{Name: "component", Category: "Filter", Value: "magnitude", Usage: "x, y, z or magnitude"},
+		&cli.StringFlag{Name: "component", Category: "Filter", Value: "magnitude", Usage: "`COMPONENT` to write: x, y, z or magnitude"},
 		&cli.BoolFlag{Name: "physical", Category: "Filter", Usage: "divide by the voxel spacing: intensity per physical unit instead of per voxel"},
 	),
 	Action: func(c *cli.Context) error { return runFilter(c, "gradient", buildGradient) },
@@ -317,7 +324,7 @@ of [1,−2,1] along each axis), with --sigma the Laplacian of a Gaussian of that
 Examples:
    tripass laplace stack.tif lap.tif
    tripass laplace tissue.tif log.tif --sigma 3um`,
-	Flags: filterFlags(
+	Flags: filterFlags("float32",
 		&cli.StringFlag{Name: "sigma", Category: "Filter", Usage: "Gaussian standard deviation `S` or X,Y,Z for the Laplacian of Gaussian; voxels or with a unit"},
 	),
 	Action: func(c *cli.Context) error { return runFilter(c, "laplace", buildLaplace) },
@@ -348,9 +355,9 @@ Widths in voxels or physical units.
 
 Example:
    tripass dog tissue.tif blobs.tif --sigma 2um --sigma2 6um`,
-	Flags: filterFlags(
-		&cli.StringFlag{Name: "sigma", Category: "Filter", Usage: "width of the first (usually narrower) Gaussian, `S` or X,Y,Z; voxels or with a unit"},
-		&cli.StringFlag{Name: "sigma2", Category: "Filter", Usage: "width of the Gaussian subtracted, `S` or X,Y,Z; voxels or with a unit"},
+	Flags: filterFlags("float32",
+		&cli.StringFlag{Name: "sigma", Category: "Filter", Usage: "width of the first (usually narrower) Gaussian, `S` or X,Y,Z; voxels or with a unit (required)"},
+		&cli.StringFlag{Name: "sigma2", Category: "Filter", Usage: "width of the Gaussian subtracted, `S` or X,Y,Z; voxels or with a unit (required)"},
 	),
 	Action: func(c *cli.Context) error { return runFilter(c, "dog", buildDoG) },
 }
@@ -387,10 +394,10 @@ the kernel is mirrored, as the mathematical definition has it.
 Examples:
    tripass convolve stack.tif out.tif --kernel psf.npy
    tripass convolve stack.tif out.tif --kernel psf.npy --tolerance 1e-3 --form tucker`,
-	Flags: filterFlags(
-		&cli.StringFlag{Name: "kernel", Category: "Filter", Usage: "kernel `FILE` (.npy or .txt)", Required: true},
-		&cli.Float64Flag{Name: "tolerance", Category: "Filter", Value: 1e-6, Usage: "largest relative (Frobenius) error allowed for a separable form"},
-		&cli.StringFlag{Name: "form", Category: "Filter", Usage: "force a form: direct, cp or tucker (default: the cheapest within --tolerance)"},
+	Flags: filterFlags("float32",
+		&cli.StringFlag{Name: "kernel", Category: "Filter", Usage: "the kernel to apply: a .npy or text `FILE` (see 'tripass kernel make --help')", Required: true},
+		&cli.Float64Flag{Name: "tolerance", Category: "Filter", Value: 1e-6, Usage: "largest relative (Frobenius) `ERROR` allowed for a separable form"},
+		&cli.StringFlag{Name: "form", Category: "Filter", Usage: "force a `FORM`: direct, cp or tucker (default: the cheapest within --tolerance)"},
 	),
 	Action: func(c *cli.Context) error { return runFilter(c, "convolve", buildConvolve) },
 }

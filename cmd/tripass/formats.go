@@ -71,18 +71,18 @@ var (
 		Name:     "raw-type",
 		Category: "Raw input",
 		Value:    "uint16",
-		Usage:    "sample type of a raw input: uint8, uint16, int16, uint32, int32, float32, float64",
+		Usage:    "sample `TYPE` of a raw input: uint8, uint16, int16, uint32, int32, float32, float64",
 	}
 	flagRawEndian = &cli.StringFlag{
 		Name:     "raw-endian",
 		Category: "Raw input",
 		Value:    "little",
-		Usage:    "byte order of a raw input or output: little or big",
+		Usage:    "byte `ORDER` of a raw input or output: little or big",
 	}
 	flagRawOffset = &cli.Int64Flag{
 		Name:     "raw-offset",
 		Category: "Raw input",
-		Usage:    "bytes to skip at the start of a raw input (a header tripass ignores)",
+		Usage:    "`BYTES` to skip at the start of a raw input (a header tripass ignores)",
 	}
 )
 
@@ -92,7 +92,7 @@ var (
 		Name:     "compress",
 		Category: "Output",
 		Value:    "none",
-		Usage:    "compression of TIFF output: none, lzw or deflate (lossless; lzw and deflate use the horizontal predictor for integer samples)",
+		Usage:    "`METHOD` of compressing TIFF output: none, lzw or deflate (lossless; lzw and deflate use the horizontal predictor for integer samples)",
 	}
 	flagBigTIFF = &cli.BoolFlag{
 		Name:     "bigtiff",
