@@ -303,8 +303,15 @@ func createOutput(c *cli.Context, path string, h volume.Header, opt outputOption
 			sink, err = rawstack.CreateResumable(path, h, order, overwrite)
 		}
 	case kindNIfTI:
-		sink, err = nifti.Create(path, h, nifti.WriteOptions{Orientation: opt.Orientation, Overwrite: overwrite,
-			Description: "written by tripass " + version})
+		no := nifti.WriteOptions{Orientation: opt.Orientation, Overwrite: overwrite, Description: "written by tripass " + version}
+		switch {
+		case !nifti.Resumable(path): // .nii.gz
+			sink, err = nifti.Create(path, h, no)
+		case opt.ResumeAt > 0:
+			sink, err = nifti.Resume(path, h, no, opt.ResumeAt)
+		default:
+			sink, err = nifti.CreateResumable(path, h, no)
+		}
 	}
 	if err != nil {
 		if errors.Is(err, atomicfile.ErrExists) {

@@ -17,6 +17,7 @@ import (
 	"github.com/urfave/cli/v2"
 
 	"github.com/tripass/tripass/internal/atomicfile"
+	"github.com/tripass/tripass/io/nifti"
 	"github.com/tripass/tripass/tensor"
 	"github.com/tripass/tripass/volume"
 )
@@ -317,6 +318,14 @@ func paramDiff(old, now []string) string {
 // errNoJournal is returned for --resume when there is no interrupted run to continue.
 var errNoJournal = errors.New("no interrupted run to resume")
 
+// resumablePath reports whether the output at path can be continued after an
+// interruption: every kind but .nii.gz, a single gzip stream compressed in parallel
+// blocks (io/nifti's Resumable).
+func resumablePath(path string) bool {
+	k, err := kindOf(path)
+	return err == nil && (k != kindNIfTI || nifti.Resumable(path))
+}
+
 // runJournal is the journal of one run and the lock on its output.
 type runJournal struct {
 	jr     *journal // Done and Bytes say where the run starts
@@ -337,6 +346,12 @@ func (j *streamJob) openJournal(c *cli.Context) (*runJournal, error) {
 		return nil, err
 	}
 	rs := &runJournal{jr: jr, path: journalPath(j.outPath), unlock: unlock}
+	if !resumablePath(j.outPath) {
+		if c.Bool(flagResume.Name) {
+			note(c, "%s: this kind of output cannot be continued; --resume starts it over", j.outPath)
+		}
+		return rs, nil
+	}
 	old, err := readJournal(rs.path)
 	switch {
 	case err != nil && !errors.Is(err, os.ErrNotExist):

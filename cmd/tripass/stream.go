@@ -66,7 +66,7 @@ func (j *streamJob) run(c *cli.Context) (volume.FilterStats, error) {
 	done := 0 // output slices an earlier run made durable
 	if rs != nil {
 		done = rs.jr.Done
-		if o, ok := sink.(*output); ok {
+		if o, ok := sink.(*output); ok && resumablePath(j.outPath) {
 			w.sink, _ = o.Sink.(resumableSink)
 		}
 		if w.sink != nil {
@@ -114,7 +114,7 @@ func (j *streamJob) run(c *cli.Context) (volume.FilterStats, error) {
 		sink.Abort()
 		rs.discard()
 		if errors.Is(err, errInterrupted) {
-			return st, &exitError{ExitFailure, fmt.Errorf("%s: interrupted; the partial output was removed", j.outPath)}
+			return st, &exitError{ExitInterrupted, fmt.Errorf("%s: interrupted; this output cannot be continued, so the partial output was removed (run the command again to start over)", j.outPath)}
 		}
 		if werr := writeFailure(j.outPath, j.z0+done+w.written, err); werr != nil {
 			return st, werr
