@@ -9,9 +9,7 @@ import (
 // served slice by slice in its header's sample type. It is meant for tests, benchmarks
 // and small volumes built in code; it implements Source and SliceSeeker.
 type MemSource struct {
-	h    Header
-	data []float32
-	z    int
+	*GenSource
 }
 
 var (
@@ -29,35 +27,9 @@ func NewMemSource(h Header, data []float32) *MemSource {
 	if int64(len(data)) != h.Voxels() {
 		panic(fmt.Sprintf("volume: NewMemSource: %d values for %d×%d×%d voxels", len(data), h.NX, h.NY, h.NZ))
 	}
-	return &MemSource{h: h, data: data}
+	n := h.SliceLen()
+	return &MemSource{NewGenSource(h, func(z int, dst []float32) { copy(dst, data[z*n:(z+1)*n]) })}
 }
-
-// Header returns the volume's header.
-func (m *MemSource) Header() Header { return m.h }
-
-// ReadSlice fills dst with the next slice, or returns io.EOF after the last.
-func (m *MemSource) ReadSlice(dst *Slice) error {
-	if m.z >= m.h.NZ {
-		return io.EOF
-	}
-	n := m.h.SliceLen()
-	dst.Reset(m.h.NX, m.h.NY, m.h.Type)
-	encodeFloat32(dst, m.data[m.z*n:(m.z+1)*n])
-	m.z++
-	return nil
-}
-
-// SeekSlice makes slice z the next one ReadSlice returns (z = NZ means the end).
-func (m *MemSource) SeekSlice(z int) error {
-	if z < 0 || z > m.h.NZ {
-		return fmt.Errorf("seek to slice %d of %d", z, m.h.NZ)
-	}
-	m.z = z
-	return nil
-}
-
-// Close does nothing.
-func (m *MemSource) Close() error { return nil }
 
 // GenSource synthesises a volume slice by slice: slice z is whatever its function writes
 // for z. It holds one slice of float32 values however deep the volume is, which makes it
