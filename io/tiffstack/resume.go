@@ -121,9 +121,9 @@ func CreateFolderResumable(dir string, h volume.Header, opt WriteOptions) (*Fold
 }
 
 // ResumeFolder continues the partial folder of an interrupted CreateFolderResumable run
-// with the same folder, header and options: the first done slice files are kept (each
-// was synced when written), any later file is removed, and the next WriteSlice writes
-// slice done.
+// with the same folder, header and options: the first done slice files are kept (the
+// Sync that reported them made them durable), any later file is removed, and the next
+// WriteSlice writes slice done.
 func ResumeFolder(dir string, h volume.Header, opt WriteOptions, done int) (*FolderWriter, error) {
 	if done < 0 || done > h.NZ {
 		return nil, fmt.Errorf("%s: cannot resume after slice %d of %d", dir, done, h.NZ)
@@ -189,14 +189,18 @@ func folderDigits(nz int) int {
 	return max(4, d)
 }
 
-// Sync makes every slice file written so far durable (each file is synced as it is
-// written; this syncs the folder that names them) and returns how many there are.
+// Sync makes every slice file written so far durable (the files not yet synced, then
+// the folder that names them) and returns how many there are.
 func (fw *FolderWriter) Sync() (slices int, size int64, err error) {
 	if fw.err != nil {
 		return 0, 0, fw.err
 	}
 	if fw.done {
 		return 0, 0, errors.New(fw.d.Target() + ": Sync after Close or Abort")
+	}
+	if err := fw.syncPending(); err != nil {
+		fw.err = fmt.Errorf("%s: %w", fw.d.Target(), err)
+		return 0, 0, fw.err
 	}
 	if err := fw.d.Sync(); err != nil {
 		return 0, 0, fmt.Errorf("%s: syncing: %w", fw.d.Target(), err)
