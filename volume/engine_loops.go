@@ -1,5 +1,7 @@
 package volume
 
+import "math"
+
 // The engine's inner loops. Every pass of the engine is a sequence of these on flat
 // float32 slices: the x pass as shifted views of padded rows, the y pass row-wise, the z
 // pass slice-wise. Each output value receives its taps in a fixed order whatever the
@@ -30,11 +32,29 @@ func addConst(dst []float32, c float32) {
 	}
 }
 
-// sqrAdd sets dst[i] += src[i]² for every i.
-func sqrAdd(dst, src []float32) {
+// magnitudeStep folds one plan's output src into the gradient magnitude dst:
+// dst = src² for the first plan, dst += src² for the next, and the square root is taken
+// with the last addition. The values equal summing the squares into zeros and taking
+// the root afterwards; the passes over dst are fewer.
+func magnitudeStep(dst, src []float32, first, last bool) {
 	src = src[:len(dst)]
-	for i, v := range src {
-		dst[i] += v * v
+	switch {
+	case first && last:
+		for i, v := range src {
+			dst[i] = float32(math.Sqrt(float64(v * v)))
+		}
+	case first:
+		for i, v := range src {
+			dst[i] = v * v
+		}
+	case last:
+		for i, v := range src {
+			dst[i] = float32(math.Sqrt(float64(dst[i] + v*v)))
+		}
+	default:
+		for i, v := range src {
+			dst[i] += v * v
+		}
 	}
 }
 

@@ -1,7 +1,5 @@
 package volume
 
-import "math"
-
 // The compute stage of the engine: the passes on blocks of rows, run by the workers.
 
 // runPhase runs phase ph on every worker's share of the rows and waits for them.
@@ -154,12 +152,15 @@ func (e *engine) blockZ(w, y0, y1 int) {
 	n := (y1 - y0) * S
 	off := y0 * S
 	outs := e.curOuts
-	for _, o := range outs {
-		clear(o[off : off+n])
-	}
 	mag := e.combine == CombineMagnitude
+	if !mag {
+		for _, o := range outs {
+			clear(o[off : off+n])
+		}
+	}
 	dsts := e.dsts[w][:len(outs)]
-	for _, c := range e.plans {
+	last := len(e.plans) - 1
+	for pi, c := range e.plans {
 		for q, o := range outs {
 			if mag {
 				dsts[q] = e.acc[w][q][:n]
@@ -176,16 +177,10 @@ func (e *engine) blockZ(w, y0, y1 int) {
 			e.zSeparable(c, dsts, off)
 		}
 		if mag {
+			// out = √(Σ plan²), with the first square stored and the root taken on
+			// the last addition: the same values as summing into zeros, fewer passes.
 			for q, o := range outs {
-				sqrAdd(o[off:off+n], dsts[q])
-			}
-		}
-	}
-	if mag {
-		for _, o := range outs {
-			o := o[off : off+n]
-			for i, v := range o {
-				o[i] = float32(math.Sqrt(float64(v)))
+				magnitudeStep(o[off:off+n], dsts[q], pi == 0, pi == last)
 			}
 		}
 	}
