@@ -77,7 +77,6 @@ func writeRawFloat32(t *testing.T, path string, nx, ny, nz int) []string {
 	return []string{"--raw-size", fmt.Sprintf("%d,%d,%d", nx, ny, nz), "--raw-type", "float32"}
 }
 
-
 // digest is a SHA-256 of a file, or of every file of a folder in name order.
 func digest(t *testing.T, path string) string {
 	t.Helper()
