@@ -13,6 +13,7 @@ import (
 
 	"github.com/urfave/cli/v2"
 
+	"github.com/tripass/tripass/internal/atomicfile"
 	"github.com/tripass/tripass/io/tiffstack"
 	"github.com/tripass/tripass/volume"
 )
@@ -35,7 +36,7 @@ slices) leave no part and none is expected.
 
 For a folder OUT, where the tasks wrote their slice files in place, 'tripass join OUT/'
 checks that the folder holds every slice of the job and no other, then removes the
-job's record from the folder.
+job's record and any temporary file a killed task left in the folder.
 
 Examples:
    tripass join core-smooth.tif
@@ -327,6 +328,20 @@ func joinFolder(c *cli.Context, out string) error {
 	if err := os.Remove(recPath); err != nil {
 		return ioError(err)
 	}
-	note(c, "%s: complete: %d slices of %s (%d tasks), %d×%d %s", dir, h.NZ, rec.Command, rec.Count, h.NX, h.NY, h.Type)
+	// Temporary files of tasks that were killed while writing a slice (their reruns
+	// wrote the slice anew) are of no use now.
+	stale := 0
+	if ents, err := os.ReadDir(dir); err == nil {
+		for _, e := range ents {
+			if strings.HasPrefix(e.Name(), atomicfile.TempPrefix) && !e.IsDir() && os.Remove(filepath.Join(dir, e.Name())) == nil {
+				stale++
+			}
+		}
+	}
+	msg := ""
+	if stale > 0 {
+		msg = fmt.Sprintf("; removed %d temporary files of interrupted tasks", stale)
+	}
+	note(c, "%s: complete: %d slices of %s (%d tasks), %d×%d %s%s", dir, h.NZ, rec.Command, rec.Count, h.NX, h.NY, h.Type, msg)
 	return nil
 }

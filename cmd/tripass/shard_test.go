@@ -11,6 +11,7 @@ import (
 	"sync"
 	"testing"
 
+	"github.com/tripass/tripass/internal/atomicfile"
 	"github.com/tripass/tripass/volume"
 )
 
@@ -180,8 +181,13 @@ func TestShardsEqualWholeRun(t *testing.T) {
 				}
 				mustRun(t, "join", part, "-q", "--delete-parts")
 				filesEqual(t, part, whole)
+				// What a task killed while writing a slice leaves behind; join removes it.
+				os.WriteFile(filepath.Join(folder, atomicfile.TempPrefix+"z0001.tif-1234"), []byte("half"), 0o666)
 				mustRun(t, "join", folder, "-q")
 				foldersEqual(t, folder, wholeDir)
+				if ents, _ := os.ReadDir(folder); len(ents) != 9 {
+					t.Errorf("after join the folder holds %d files, want the 9 slices", len(ents))
+				}
 				if _, err := os.Stat(filepath.Join(folder, shardRecordName)); !os.IsNotExist(err) {
 					t.Errorf("join left the folder's record: %v", err)
 				}
