@@ -235,7 +235,7 @@ func CreateFolder(dir string, h volume.Header, opt WriteOptions) (*FolderWriter,
 		return nil, err
 	}
 	digits := max(4, len(strconv.Itoa(h.NZ-1)))
-	return &FolderWriter{d: d, enc: enc, h: h, digits: digits, bw: bufio.NewWriterSize(nil, 1<<20)}, nil
+	return &FolderWriter{d: d, enc: enc, h: h, digits: digits, bw: bufio.NewWriterSize(nil, writeBuffer)}, nil
 }
 
 // SliceName is the file name of slice z in a folder written by CreateFolder.

@@ -502,6 +502,11 @@ type Writer struct {
 
 var _ volume.Sink = (*Writer)(nil)
 
+// writeBuffer is the size of the writers' buffer. It gathers the small IFDs; strips
+// longer than it go to the file without being copied (bufio writes a large slice
+// directly once its buffer is empty), which matters at page-cache speed.
+const writeBuffer = 64 << 10
+
 // writebackChunk is how much written data Writer lets accumulate before it asks the
 // kernel to start putting it on disk.
 const writebackChunk = 8 << 20
@@ -522,7 +527,7 @@ func Create(path string, h volume.Header, opt WriteOptions) (*Writer, error) {
 	if err != nil {
 		return nil, err
 	}
-	w := &Writer{af: af, bw: bufio.NewWriterSize(af, 1<<20), enc: enc, h: h}
+	w := &Writer{af: af, bw: bufio.NewWriterSize(af, writeBuffer), enc: enc, h: h}
 	if w.off, err = writeHeader(w.bw, enc.big); err != nil {
 		af.Abort()
 		return nil, fmt.Errorf("%s: %w", path, err)
