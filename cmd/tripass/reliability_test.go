@@ -11,6 +11,7 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"syscall"
 	"testing"
@@ -23,6 +24,11 @@ import (
 // it under resource limits, without needing the go tool to build the command.
 func TestMain(m *testing.M) {
 	if os.Getenv("TRIPASS_TEST_AS_MAIN") == "1" {
+		// Tests may ask for checkpoints more often than a real run makes them, so that
+		// kills find more varied durable points.
+		if n, err := strconv.ParseInt(os.Getenv("TRIPASS_TEST_CHECKPOINT_BYTES"), 10, 64); err == nil {
+			checkpointBytes = n
+		}
 		os.Exit(run(append([]string{"tripass"}, os.Args[1:]...), os.Stdout, os.Stderr))
 	}
 	os.Exit(m.Run())
@@ -183,6 +189,7 @@ func TestKillAndResume(t *testing.T) {
 		// kill runs the command and kills it after a random time within a typical run.
 		kill := func(more ...string) (finished bool) {
 			cmd := tripassProcess(t, dir, args(o.name, o.extra, more...)...)
+			cmd.Env = append(cmd.Env, "TRIPASS_TEST_CHECKPOINT_BYTES=2097152") // every 8 slices
 			if err := cmd.Start(); err != nil {
 				t.Fatal(err)
 			}
@@ -239,6 +246,15 @@ func TestKillAndResume(t *testing.T) {
 		os.RemoveAll(final)
 	}
 	t.Logf("slices durable at each kill (-1: no journal yet or finished): %v", resumedFrom)
+	mid := 0
+	for _, d := range resumedFrom {
+		if d > 0 {
+			mid++
+		}
+	}
+	if mid < trials/3 {
+		t.Errorf("only %d of %d kills found slices to resume from; the trials did not test resuming", mid, trials)
+	}
 	if got := stateOf(t, filepath.Join(dir, "in.raw")); got != input {
 		t.Fatal("the input changed")
 	}
