@@ -247,8 +247,8 @@ const (
 )
 
 type task struct {
-	ph phase
-	w  int
+	ph    phase
+	epoch int64
 }
 
 type engine struct {
@@ -304,8 +304,9 @@ type engine struct {
 	outs      []*outBuf
 
 	work      chan task
-	wg        sync.WaitGroup
-	nextBlock atomic.Int64 // next block of rows to take in the current phase
+	wg        sync.WaitGroup // blocks of the current phase not yet done
+	epoch     int64          // number of the current phase
+	nextBlock atomic.Int64   // epoch<<32 | next block of rows to take
 
 	inFree  chan *inBuf
 	inCh    chan *inBuf
@@ -541,12 +542,13 @@ func (e *engine) run(dst SliceWriter, src Source) (err error) {
 	e.quit = make(chan struct{})
 	e.wdone = make(chan struct{})
 	if e.threads > 1 {
-		e.work = make(chan task, e.threads)
-		for range e.threads {
+		// Helpers 1 … threads−1; the compute goroutine itself is worker 0. A helper
+		// that comes late to a phase finds its blocks taken and waits for the next.
+		e.work = make(chan task, 4*e.threads)
+		for w := 1; w < e.threads; w++ {
 			go func() {
 				for t := range e.work {
-					e.phase(t.ph, t.w)
-					e.wg.Done()
+					e.take1(t.ph, w, t.epoch)
 				}
 			}()
 		}

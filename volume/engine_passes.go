@@ -2,37 +2,40 @@ package volume
 
 // The compute stage of the engine: the passes on blocks of rows, run by the workers.
 
-// runPhase runs phase ph on every worker's share of the rows and waits for them.
+// runPhase runs phase ph on every block of rows and returns when all are done. The
+// compute goroutine takes blocks itself while the helpers take theirs, so a helper that
+// is slow to be scheduled (the reader or the writer may hold the other core) delays
+// nothing.
 func (e *engine) runPhase(ph phase) {
 	if e.threads == 1 {
-		e.phase(ph, 0)
+		for b := range e.nblocks {
+			e.block1(ph, 0, b)
+		}
 		return
 	}
-	e.nextBlock.Store(0)
-	e.wg.Add(e.threads)
-	for w := range e.threads {
-		e.work <- task{ph, w}
+	e.epoch++
+	e.nextBlock.Store(e.epoch << 32)
+	e.wg.Add(e.nblocks)
+	for range e.threads - 1 {
+		e.work <- task{ph, e.epoch}
 	}
+	e.take1(ph, 0, e.epoch)
 	e.wg.Wait()
 }
 
-// phase runs phase ph on blocks of rows taken in turn by worker w (w's scratch). The
-// blocks are the same whoever takes them, so the output does not depend on the number
-// of workers; taking them in turn keeps both cores busy when the reader or the writer
-// borrows one.
-func (e *engine) phase(ph phase, w int) {
-	if e.threads == 1 {
-		for b := range e.nblocks {
-			e.block1(ph, w, b)
-		}
-		return
-	}
+// take1 runs phase ph on blocks of rows taken in turn, with worker w's scratch, until
+// the phase numbered epoch has none left. The blocks are the same whoever takes them,
+// so the output does not depend on the number of workers.
+func (e *engine) take1(ph phase, w int, epoch int64) {
 	for {
-		b := int(e.nextBlock.Add(1)) - 1
-		if b >= e.nblocks {
+		v := e.nextBlock.Load()
+		if v>>32 != epoch || int(v&(1<<32-1)) >= e.nblocks {
 			return
 		}
-		e.block1(ph, w, b)
+		if e.nextBlock.CompareAndSwap(v, v+1) {
+			e.block1(ph, w, int(v&(1<<32-1)))
+			e.wg.Done()
+		}
 	}
 }
 
