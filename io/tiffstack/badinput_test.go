@@ -111,6 +111,16 @@ func TestBadInput(t *testing.T) {
 			setTag(t, b, 0, tBitsPerSample, 12)
 			return b
 		}, "12-bit unsigned samples", new(UnsupportedError), false},
+		{"ImageJ images past the pages", func(t *testing.T) []byte {
+			// tifffile's ImageJ-style file (testdata) with its chain cut after page 0,
+			// as in ImageJ's layout for files past 4 GiB.
+			b, err := os.ReadFile("testdata/u16_imagej.tif")
+			if err != nil {
+				t.Fatal(err)
+			}
+			setNext(b, 0, 0)
+			return b
+		}, "ImageJ file of 5 images in 1 pages", new(UnsupportedError), false},
 		{"pages of different sizes", func(t *testing.T) []byte {
 			b := plain(t)
 			setTag(t, b, 2, tImageWidth, 19)

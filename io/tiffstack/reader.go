@@ -193,8 +193,13 @@ func parse(ra io.ReaderAt, size int64, firstOnly bool, dec *decoder) (*Reader, e
 		}
 	}
 	p0 := r.pages[0]
-	if ij, ok := parseImageJ(p0.desc); ok && (ij.channels > 1 || ij.frames > 1) {
-		return nil, UnsupportedError(fmt.Sprintf("ImageJ hyperstack with %d channels and %d frames; tripass reads one channel at one time point (split it first)", max(ij.channels, 1), max(ij.frames, 1)))
+	if ij, ok := parseImageJ(p0.desc); ok {
+		if ij.channels > 1 || ij.frames > 1 {
+			return nil, UnsupportedError(fmt.Sprintf("ImageJ hyperstack with %d channels and %d frames; tripass reads one channel at one time point (split it first)", max(ij.channels, 1), max(ij.frames, 1)))
+		}
+		if ij.images > len(r.pages) && !firstOnly {
+			return nil, UnsupportedError(fmt.Sprintf("ImageJ file of %d images in %d pages (the images past the first page stored as raw data); save it as TIFF pages or BigTIFF", ij.images, len(r.pages)))
+		}
 	}
 	if ome, ok := parseOME(p0.desc); ok {
 		if ome.images > 1 {
@@ -301,12 +306,14 @@ func parseDescription(s string) (sp [3]float64, unit string, ok bool) {
 // "ImageJ=<version>". The keys used here, from memory of files in the wild: unit (the
 // length unit of the spacing; "micron" or an escaped "\u00B5m" for micrometres),
 // spacing (the z spacing in that unit), channels and frames (more than one of either
-// interleaves other images with the z-slices). Such files give XResolution in pixels
-// per that unit with ResolutionUnit 1 (none).
+// interleaves other images with the z-slices), images (the number of images; files
+// past 4 GiB store more images than pages, the rest as raw data after the first).
+// Such files give XResolution in pixels per that unit with ResolutionUnit 1 (none).
 type imageJMeta struct {
 	unit             string // canonical; "" when absent or not a length
 	zSpacing         float64
 	channels, frames int
+	images           int // number of images the file holds
 }
 
 func parseImageJ(desc string) (imageJMeta, bool) {
@@ -333,6 +340,8 @@ func parseImageJ(desc string) (imageJMeta, bool) {
 			m.channels, _ = strconv.Atoi(v)
 		case "frames":
 			m.frames, _ = strconv.Atoi(v)
+		case "images":
+			m.images, _ = strconv.Atoi(v)
 		}
 	}
 	return m, true
