@@ -144,6 +144,9 @@ def main():
             ("lzw_pred_tiles", ["-t", "-w", "16", "-l", "16", "-c", "lzw:" + pred]),
             ("packbits_big_be", ["-8", "-B", "-c", "packbits"]),
         ]
+        if dtype == "uint16":
+            # Tiles far larger than the image, as some writers use by default.
+            variants.append(("lzw_tiles512", ["-t", "-w", "512", "-l", "512", "-c", "lzw:2"]))
         for tag, args in variants:
             name = f"{s}_{tag}.tif"
             tiffcp(args, src, os.path.join(OUT, name))

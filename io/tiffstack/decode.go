@@ -133,6 +133,9 @@ func (d *decoder) checkChunks(tf *tiffFile, p *page) error {
 		total += c
 	}
 	need := uint64(p.width) * uint64(p.height) * uint64(p.typ.Size())
+	if p.tiled {
+		need = uint64(p.n) * uint64(p.tileW*p.tileH*p.typ.Size()) // whole tiles are decoded
+	}
 	const slack = 1024 // headers and end codes of tiny strips
 	if need > total*maxRatio(p.compression)+slack {
 		return FormatError(fmt.Sprintf("%d bytes of %s data cannot hold a %d×%d %s page", total, compressionName(p.compression), p.width, p.height, p.typ))

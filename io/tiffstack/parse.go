@@ -63,6 +63,11 @@ type tiffFile struct {
 	scratch []byte // reused for IFD entries and value arrays
 }
 
+// maxSmallTile is the largest tile tripass accepts for an image smaller than it: a
+// crafted tile size could otherwise force a buffer far larger than the image (a tile
+// of up to four slices is accepted whatever its size).
+const maxSmallTile = 16 << 20
+
 // maxDescription bounds how much of an ImageDescription is read: tripass's own line is
 // short, OME-XML puts the Pixels element tripass needs near its start, and a
 // description can be megabytes of XML.
@@ -370,7 +375,8 @@ func (t *tiffFile) parseIFD(off uint64, first bool) (*page, error) {
 		if tileW == 0 || tileH == 0 || tileOffs == nil || tileCounts == nil {
 			return nil, FormatError("tiled image without TileWidth, TileLength, TileOffsets and TileByteCounts")
 		}
-		if tileW > 2*uint64(p.width)+256 || tileH > 2*uint64(p.height)+256 {
+		sliceBytes := uint64(p.width) * uint64(p.height) * uint64(typ.Size())
+		if tileW > 1<<16 || tileH > 1<<16 || tileW*tileH*uint64(typ.Size()) > max(maxSmallTile, 4*sliceBytes) {
 			return nil, FormatError(fmt.Sprintf("tiles of %d×%d for a %d×%d image", tileW, tileH, p.width, p.height))
 		}
 		p.tiled = true
