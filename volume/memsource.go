@@ -9,7 +9,8 @@ import (
 // served slice by slice in its header's sample type. It is meant for tests, benchmarks
 // and small volumes built in code; it implements Source and SliceSeeker.
 type MemSource struct {
-	*GenSource
+	*GenSource // header, position, SeekSlice and Close
+	data       []float32
 }
 
 var (
@@ -27,8 +28,13 @@ func NewMemSource(h Header, data []float32) *MemSource {
 	if int64(len(data)) != h.Voxels() {
 		panic(fmt.Sprintf("volume: NewMemSource: %d values for %d×%d×%d voxels", len(data), h.NX, h.NY, h.NZ))
 	}
-	n := h.SliceLen()
-	return &MemSource{NewGenSource(h, func(z int, dst []float32) { copy(dst, data[z*n:(z+1)*n]) })}
+	return &MemSource{GenSource: &GenSource{h: h}, data: data}
+}
+
+// ReadSlice fills dst with the next slice, or returns io.EOF after the last.
+func (m *MemSource) ReadSlice(dst *Slice) error {
+	n := m.h.SliceLen()
+	return m.next(dst, func() []float32 { return m.data[m.z*n : (m.z+1)*n] })
 }
 
 // GenSource synthesises a volume slice by slice: slice z is whatever its function writes
@@ -62,12 +68,20 @@ func (g *GenSource) Header() Header { return g.h }
 
 // ReadSlice fills dst with the next slice, or returns io.EOF after the last.
 func (g *GenSource) ReadSlice(dst *Slice) error {
+	return g.next(dst, func() []float32 {
+		g.gen(g.z, g.buf)
+		return g.buf
+	})
+}
+
+// next encodes the values that slice returns for the current slice into dst and moves
+// on, or returns io.EOF after the last slice.
+func (g *GenSource) next(dst *Slice, slice func() []float32) error {
 	if g.z >= g.h.NZ {
 		return io.EOF
 	}
-	g.gen(g.z, g.buf)
 	dst.Reset(g.h.NX, g.h.NY, g.h.Type)
-	encodeFloat32(dst, g.buf)
+	encodeFloat32(dst, slice())
 	g.z++
 	return nil
 }
