@@ -42,7 +42,11 @@
 // or centimetre, converted to micrometres) and written in pixels per centimetre. TIFF
 // has no tag for the z spacing, so tripass also writes an ImageDescription of its own
 // on the first page, "tripass spacing=X,Y,Z unit=U", and reads z and the unit back
-// from it. Where neither is present the spacing is zero (unknown) and the unit empty.
+// from it. Stacks from microscopes often carry ImageJ-style descriptions (unit and
+// z spacing as key=value lines, resolution in pixels per that unit) or OME-XML
+// (PhysicalSizeX/Y/Z); both are read, and files whose pages interleave several
+// channels, time points or series are refused rather than read as z-slices. Where
+// nothing says, the spacing is zero (unknown) and the unit empty.
 //
 // # Errors
 //
