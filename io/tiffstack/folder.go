@@ -37,29 +37,74 @@ type sliceFile struct {
 	num  uint64
 }
 
-// lastNumber returns the last run of decimal digits in a file name without its
-// extension ("slice_0012.tif" → 12).
-func lastNumber(name string) (uint64, bool) {
+// numbers returns the runs of decimal digits in a file name without its extension
+// ("stack_z0012_c1.tif" → 12, 1); ok is false when a run does not fit in a uint64.
+func numbers(name string) (nums []uint64, ok bool) {
 	base := strings.TrimSuffix(name, filepath.Ext(name))
-	end := strings.LastIndexAny(base, "0123456789")
-	if end < 0 {
-		return 0, false
+	for i := 0; i < len(base); {
+		if base[i] < '0' || base[i] > '9' {
+			i++
+			continue
+		}
+		j := i
+		for j < len(base) && base[j] >= '0' && base[j] <= '9' {
+			j++
+		}
+		n, err := strconv.ParseUint(base[i:j], 10, 64)
+		if err != nil {
+			return nil, false
+		}
+		nums, i = append(nums, n), j
 	}
-	start := end
-	for start > 0 && base[start-1] >= '0' && base[start-1] <= '9' {
-		start--
+	return nums, true
+}
+
+// sliceNumbers picks the number that orders each file: the last number in its name,
+// except that when every name has the same count of numbers and the last one is the
+// same in all of them (a channel or camera index after the slice number, as in
+// "z0012_c1.tif"), the rightmost number that differs between files.
+func sliceNumbers(dir string, names []string) ([]uint64, error) {
+	all := make([][]uint64, len(names))
+	for i, name := range names {
+		nums, ok := numbers(name)
+		if ok && len(nums) == 0 && len(names) == 1 {
+			nums = []uint64{0} // one slice needs no order
+		}
+		if !ok || len(nums) == 0 {
+			return nil, fmt.Errorf("%s: no number in the file name to order the slices by", filepath.Join(dir, name))
+		}
+		all[i] = nums
 	}
-	digits := strings.TrimLeft(base[start:end+1], "0")
-	if digits == "" {
-		return 0, true
+	k := len(all[0])
+	pick := func(i int) int { return len(all[i]) - 1 } // the last number
+	same := true
+	for _, nums := range all {
+		same = same && len(nums) == k
 	}
-	n, err := strconv.ParseUint(digits, 10, 64)
-	return n, err == nil
+	if same && len(names) > 1 {
+		for j := k - 1; j >= 0; j-- {
+			varies := false
+			for _, nums := range all {
+				varies = varies || nums[j] != all[0][j]
+			}
+			if varies {
+				pick = func(int) int { return j }
+				break
+			}
+		}
+	}
+	out := make([]uint64, len(names))
+	for i := range names {
+		out[i] = all[i][pick(i)]
+	}
+	return out, nil
 }
 
 // OpenFolder opens a folder of single-page TIFF slices (.tif or .tiff; hidden files
 // are ignored). The slices are ordered by the last number in their names, compared as
-// numbers, so slice_2 comes before slice_10; the numbers must run without a gap. Every
+// numbers, so slice_2 comes before slice_10 (or by the rightmost number that differs,
+// when the last is the same in every name: z0012_c1.tif); the numbers must run without
+// a gap. Every
 // file's first IFD is read and checked at once: each must be one page of the same size
 // and sample type as the first. The spacing comes from the first file.
 func OpenFolder(dir string) (*FolderReader, error) {
@@ -67,21 +112,25 @@ func OpenFolder(dir string) (*FolderReader, error) {
 	if err != nil {
 		return nil, err
 	}
-	var list []sliceFile
+	var names []string
 	for _, e := range ents {
 		name := e.Name()
 		ext := strings.ToLower(filepath.Ext(name))
 		if strings.HasPrefix(name, ".") || (ext != ".tif" && ext != ".tiff") || e.IsDir() {
 			continue
 		}
-		n, ok := lastNumber(name)
-		if !ok {
-			return nil, fmt.Errorf("%s: no number in the file name to order the slices by", filepath.Join(dir, name))
-		}
-		list = append(list, sliceFile{name, n})
+		names = append(names, name)
 	}
-	if len(list) == 0 {
+	if len(names) == 0 {
 		return nil, fmt.Errorf("%s: no .tif or .tiff files in the folder", dir)
+	}
+	nums, err := sliceNumbers(dir, names)
+	if err != nil {
+		return nil, err
+	}
+	list := make([]sliceFile, len(names))
+	for i, name := range names {
+		list[i] = sliceFile{name, nums[i]}
 	}
 	slices.SortFunc(list, func(a, b sliceFile) int {
 		if a.num != b.num {
