@@ -170,7 +170,31 @@ check() {
   fi
   say "ok: $* in $parts Slurm tasks + join = the whole run, byte for byte ($(du -sk "$out" | cut -f1) KiB)"
 }
+# check_chain does the same through scripts/cluster/submit-slurm.sh, the way a user
+# submits: the array, and the join as a job that depends on it; then waits for the join.
+check_chain() {
+  local out=$1; shift
+  local whole=$1; shift
+  "$TRIPASS" "$@" "$in" "$whole" -q
+  local ids join state=
+  ids=$(cd "$work" && N=$N scripts_cluster/submit-slurm.sh "$1" "$in" "$out" "${@:2}" -q)
+  join=$(echo "$ids" | sed -n 's/.*join job \([0-9][0-9]*\).*/\1/p')
+  [ -n "$join" ] || { say "submit-slurm.sh printed no join job id: $ids"; return 1; }
+  for _ in $(seq 600); do
+    state=$(scontrol show job -o "$join" 2>/dev/null | sed -n 's/.*JobState=\([A-Z_]*\).*/\1/p')
+    case "$state" in
+      COMPLETED) break ;;
+      FAILED|CANCELLED|TIMEOUT|NODE_FAIL|OUT_OF_MEMORY|BOOT_FAIL|DEADLINE)
+        say "the join job ended $state:"; cat "$work"/tripass-*.out >&2 || true; return 1 ;;
+    esac
+    sleep 1
+  done
+  [ "$state" = COMPLETED ] || skip "the join job did not finish in 10 minutes (state '${state:-unknown}')"
+  cmp "$whole" "$out" || { say "FAIL: $out differs from the whole run $whole"; return 1; }
+  say "ok: $* in $N Slurm tasks + dependent join job (submit-slurm.sh) = the whole run, byte for byte"
+}
 cp -r scripts/cluster "$work/scripts_cluster"
 check "$work/smooth.tif" "$work/smooth-whole.tif" smooth --sigma 1.5 --edge reflect --compress lzw
 check "$work/grad/" "$work/grad-whole/" gradient --operator gaussian --sigma 1 --edge periodic
+check_chain "$work/log.nii.gz" "$work/log-whole.nii.gz" laplace --sigma 1 --edge constant --fill 3
 say "PASS"
