@@ -304,12 +304,9 @@ func createOutput(c *cli.Context, path string, h volume.Header, opt outputOption
 		}
 	case kindNIfTI:
 		no := nifti.WriteOptions{Orientation: opt.Orientation, Overwrite: overwrite, Description: "written by tripass " + version}
-		switch {
-		case !nifti.Resumable(path): // .nii.gz
-			sink, err = nifti.Create(path, h, no)
-		case opt.ResumeAt > 0:
-			sink, err = nifti.Resume(path, h, no, opt.ResumeAt)
-		default:
+		if opt.ResumeAt > 0 {
+			sink, err = nifti.Resume(path, h, no, opt.ResumeAt, opt.ResumeSize)
+		} else {
 			sink, err = nifti.CreateResumable(path, h, no)
 		}
 	}

@@ -319,8 +319,8 @@ func paramDiff(old, now []string) string {
 var errNoJournal = errors.New("no interrupted run to resume")
 
 // resumablePath reports whether the output at path can be continued after an
-// interruption: every kind but .nii.gz, a single gzip stream compressed in parallel
-// blocks (io/nifti's Resumable).
+// interruption. Every layout tripass writes can (io/nifti's Resumable says so for
+// NIfTI); a layout that could not would be written again from the start.
 func resumablePath(path string) bool {
 	k, err := kindOf(path)
 	return err == nil && (k != kindNIfTI || nifti.Resumable(path))

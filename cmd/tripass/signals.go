@@ -59,9 +59,6 @@ type checkpointWriter struct {
 	written int // slices written by this run
 	last    time.Time
 	pending int64 // bytes written since the last checkpoint
-	// every, if positive, forces a checkpoint after that many slices (formats whose
-	// durable points must fall on fixed slices, .nii.gz).
-	every int
 }
 
 func (w *checkpointWriter) WriteSlice(s *volume.Slice) error {
@@ -74,12 +71,6 @@ func (w *checkpointWriter) WriteSlice(s *volume.Slice) error {
 	w.written++
 	w.pending += int64(len(s.Data))
 	if w.sink == nil {
-		return nil
-	}
-	if w.every > 0 {
-		if (w.jr.Done+w.written)%w.every == 0 { // counted from the start of the output
-			return w.checkpoint()
-		}
 		return nil
 	}
 	if w.pending >= checkpointBytes || time.Since(w.last) >= checkpointInterval {
@@ -114,18 +105,7 @@ func (w *checkpointWriter) suspend() (int, error) {
 	if err != nil {
 		return 0, err
 	}
-	if w.every > 0 {
-		// Only the fixed points are places to continue from; the journal already
-		// names the last one passed.
-		return w.lastFixed(), nil
-	}
 	return n, w.record(n, size)
-}
-
-// lastFixed is the number of slices done at the last fixed checkpoint.
-func (w *checkpointWriter) lastFixed() int {
-	total := w.jr.Done + w.written
-	return total - total%w.every
 }
 
 // cancelSource stops reading once the run is interrupted, and counts NaN and infinite
