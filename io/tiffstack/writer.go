@@ -509,7 +509,7 @@ const writeBuffer = 64 << 10
 
 // writebackChunk is how much written data Writer lets accumulate before it asks the
 // kernel to start putting it on disk.
-const writebackChunk = 8 << 20
+const writebackChunk = 2 << 20
 
 // Create starts writing a stack of h.NZ pages to path. The file is BigTIFF when
 // opt.BigTIFF asks for it or when an upper bound of its size passes 4 GiB (compressed
