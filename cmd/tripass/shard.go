@@ -454,10 +454,11 @@ func jobFingerprint(c *cli.Context, j *streamJob, count int) (string, error) {
 		fmt.Fprintf(h, "output %s\n", abs)
 	}
 	fmt.Fprintf(h, "output header %+v\n", j.outH)
+	// Every parameter's value, given or default, so that tasks that spell the same
+	// job differently ("--edge symmetric" or nothing) agree.
 	var names []string
 	for _, f := range c.Command.Flags {
-		name := f.Names()[0]
-		if !runtimeFlags[name] && c.IsSet(name) {
+		if name := f.Names()[0]; !runtimeFlags[name] && name != "help" {
 			names = append(names, name)
 		}
 	}

@@ -479,6 +479,8 @@ func TestShardPartGuards(t *testing.T) {
 	if code != ExitUsage || !strings.Contains(errs, "another job") {
 		t.Fatalf("part of another job: exit %d, %q", code, errs)
 	}
+	// The same job spelled differently: default values given, flags in another order.
+	mustRun(t, "smooth", "--edge", "symmetric", "--sigma", "1", in, out, "-q", "--shard", "2/2", "--compress", "none")
 	mustRun(t, "join", p[1], p[0], filepath.Join(dir, "joined")+"/", "-q")
 	mustRun(t, "smooth", in, filepath.Join(dir, "whole")+"/", "--sigma", "1", "-q")
 	foldersEqual(t, filepath.Join(dir, "joined"), filepath.Join(dir, "whole"))
