@@ -166,14 +166,14 @@ func (t *tiffFile) parseIFD(off uint64, first bool) (*page, error) {
 	if n == 0 {
 		return nil, FormatError(fmt.Sprintf("IFD at offset %d has no entries", off))
 	}
-	if n > 1<<16 {
-		// Tags are 16-bit and unique within an IFD (TIFF 6.0 Section 2), so more
-		// entries than that can only be damage; do not size a buffer from it.
-		return nil, FormatError(fmt.Sprintf("IFD at offset %d claims %d entries", off, n))
-	}
 	rest := uint64(t.size) - off - uint64(countSize)
 	if n > rest/uint64(entrySize) || n*uint64(entrySize)+uint64(nextSize) > rest {
 		return nil, FormatError(fmt.Sprintf("IFD at offset %d claims %d entries, more than the file holds", off, n))
+	}
+	if n > 1<<16 {
+		// Tags are 16-bit and unique within an IFD (TIFF 6.0 Section 2), so more
+		// entries than that can only be damage; do not size a buffer from it.
+		return nil, FormatError(fmt.Sprintf("IFD at offset %d claims %d entries, more than the 65536 distinct tags", off, n))
 	}
 	b := t.buf(int(n)*entrySize + nextSize)
 	if err := t.readAt(b, off+uint64(countSize)); err != nil {

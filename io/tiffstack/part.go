@@ -3,6 +3,7 @@ package tiffstack
 import (
 	"bufio"
 	"bytes"
+	"encoding/binary"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -271,4 +272,82 @@ func syncDir(dir string) {
 		d.Sync() // best effort: some file systems refuse to sync a folder
 		d.Close()
 	}
+}
+
+// CopyPage writes page z of r as the next page of w without decoding and encoding its
+// samples again, when the page is laid out exactly as w would write it: same size and
+// sample type, strips (not tiles) of the same rows, the same compression and predictor,
+// little-endian. tripass's encoders are deterministic, so the page's strips are then the
+// bytes w would write for the same slice, and a stack assembled from parts written with
+// the same options equals the stack written in one go, at the speed of a copy. ok is
+// false, and nothing is written, when the layouts differ or a strip is larger than the
+// encoder can make it; the caller then reads the slice and writes it with WriteSlice.
+// The compressed bytes themselves are not decoded, so damage inside a strip that leaves
+// the file's structure intact is copied as it is.
+func (w *Writer) CopyPage(r *Reader, z int) (ok bool, err error) {
+	if w.err != nil {
+		return false, w.err
+	}
+	if w.done {
+		return false, fmt.Errorf("%s: write after Close or Abort", w.af.Target())
+	}
+	if z < 0 || z >= len(r.pages) {
+		return false, fmt.Errorf("%s: page %d of a stack of %d", r.name, z, len(r.pages))
+	}
+	if w.z >= w.h.NZ {
+		return false, fmt.Errorf("%s: slice %d written to a stack of %d slices", w.af.Target(), w.z, w.h.NZ)
+	}
+	p, e := r.pages[z], w.enc
+	pred := uint16(predNone)
+	if e.opt.Predictor {
+		pred = predHoriz
+		if w.h.Type.IsFloat() {
+			pred = predFloat
+		}
+	}
+	if p.width != w.h.NX || p.height != w.h.NY || p.typ != w.h.Type || p.tiled ||
+		p.rowsPerStrip != e.rowsPerStrip || p.n != e.nstrips || p.compression != e.opt.Compression.code() ||
+		p.predictor != pred || r.tf.order != binary.LittleEndian {
+		return false, nil
+	}
+	offs, counts, err := r.dec.load(r.tf, p)
+	if err != nil {
+		return false, fmt.Errorf("%s: %w", r.name, within(fmt.Sprintf("page %d", z), err))
+	}
+	for i := range counts {
+		n := uint64(e.stripBytes(i))
+		limit := n // uncompressed strips are exactly the samples
+		switch e.opt.Compression {
+		case LZW:
+			limit = n*3/2 + n/1024 + 16 // as pageBound
+		case Deflate:
+			limit = n + n/1024 + 64
+		}
+		if counts[i] > limit || (e.opt.Compression == None && counts[i] != n) {
+			return false, nil
+		}
+	}
+	for i := range counts {
+		b := e.bufs[i]
+		if uint64(cap(b)) < counts[i] {
+			b = make([]byte, counts[i])
+		}
+		b = b[:counts[i]]
+		if err := r.tf.readAt(b, offs[i]); err != nil {
+			return false, fmt.Errorf("%s: %w", r.name, within(fmt.Sprintf("page %d: strip %d", z, i), err))
+		}
+		e.bufs[i], e.strips[i] = b, b
+	}
+	desc := ""
+	if w.z == 0 {
+		desc = description(w.h)
+	}
+	off, err := e.writePage(w.bw, w.off, desc, w.z == w.h.NZ-1)
+	if err != nil {
+		w.err = fmt.Errorf("%s: slice %d: %w", w.af.Target(), w.z, err)
+		return false, w.err
+	}
+	w.off = off
+	w.z++
+	return true, nil
 }

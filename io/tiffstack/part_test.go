@@ -190,3 +190,93 @@ func TestFolderRangeShortAndBadRange(t *testing.T) {
 		t.Errorf("folder holds %v, want only the finished z0002.tif", ents)
 	}
 }
+
+// TestCopyPageAssemblesParts assembles a stack from two noted parts by copying their
+// pages, and compares it with the stack written in one go, byte for byte. A page laid
+// out otherwise is refused and goes through WriteSlice instead.
+func TestCopyPageAssemblesParts(t *testing.T) {
+	u16 := func() (volume.Header, []float32) {
+		h, d := rampVolume(300, 1000, 4) // 3 strips a page
+		h.Type = volume.Uint16
+		for i := range d {
+			d[i] = float32(i % 5000)
+		}
+		return h, d
+	}
+	for _, tc := range []struct {
+		name      string
+		vol       func() (volume.Header, []float32)
+		part, out WriteOptions
+		copied    bool
+	}{
+		{"none", func() (volume.Header, []float32) { return rampVolume(300, 700, 4) }, WriteOptions{}, WriteOptions{}, true},
+		{"lzw-predictor", u16, WriteOptions{Compression: LZW, Predictor: true}, WriteOptions{Compression: LZW, Predictor: true}, true},
+		{"deflate-bigtiff-part", func() (volume.Header, []float32) { return rampVolume(9, 5, 4) }, WriteOptions{Compression: Deflate, BigTIFF: true}, WriteOptions{Compression: Deflate}, true},
+		{"other-compression", u16, WriteOptions{Compression: LZW}, WriteOptions{Compression: Deflate}, false},
+		{"other-predictor", u16, WriteOptions{Compression: LZW}, WriteOptions{Compression: LZW, Predictor: true}, false},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			h, data := tc.vol()
+			dir := t.TempDir()
+			whole := filepath.Join(dir, "whole.tif")
+			w, err := Create(whole, h, tc.out)
+			if err != nil {
+				t.Fatal(err)
+			}
+			writeAll(t, w, h, data, 0, h.NZ)
+			var parts []*Reader
+			for i, r := range [][2]int{{0, 1}, {1, 4}} {
+				ph := h
+				ph.NZ = r[1] - r[0]
+				path := filepath.Join(dir, "part"+string(rune('a'+i))+".tif")
+				pw, err := CreateNoted(path, ph, tc.part, []byte(`{"part":1}`))
+				if err != nil {
+					t.Fatal(err)
+				}
+				writeAll(t, pw, h, data, r[0], r[1])
+				pr, err := Open(path)
+				if err != nil {
+					t.Fatal(err)
+				}
+				defer pr.Close()
+				parts = append(parts, pr)
+			}
+			joined := filepath.Join(dir, "joined.tif")
+			jw, err := Create(joined, h, tc.out)
+			if err != nil {
+				t.Fatal(err)
+			}
+			s := &volume.Slice{}
+			for _, pr := range parts {
+				for z := 0; z < pr.Header().NZ; z++ {
+					ok, err := jw.CopyPage(pr, z)
+					if err != nil {
+						t.Fatal(err)
+					}
+					if ok != tc.copied {
+						t.Fatalf("page %d copied: %v, want %v", z, ok, tc.copied)
+					}
+					if !ok {
+						if err := pr.SeekSlice(z); err != nil {
+							t.Fatal(err)
+						}
+						if err := pr.ReadSlice(s); err != nil {
+							t.Fatal(err)
+						}
+						if err := jw.WriteSlice(s); err != nil {
+							t.Fatal(err)
+						}
+					}
+				}
+			}
+			if err := jw.Close(); err != nil {
+				t.Fatal(err)
+			}
+			a, _ := os.ReadFile(whole)
+			b, _ := os.ReadFile(joined)
+			if !bytes.Equal(a, b) {
+				t.Errorf("assembled stack (%d bytes) differs from the stack written in one go (%d bytes)", len(b), len(a))
+			}
+		})
+	}
+}
