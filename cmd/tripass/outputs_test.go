@@ -10,6 +10,7 @@ import (
 	"testing"
 
 	"github.com/tripass/tripass/internal/atomicfile"
+	"github.com/tripass/tripass/volume"
 )
 
 // leftovers lists the temporary files and folders tripass left in dir.
@@ -281,5 +282,35 @@ func TestValuesAreCounted(t *testing.T) {
 	code, _, errs = runCLI(t, append([]string{"smooth", in, filepath.Join(dir, "s.tif"), "--sigma", "0.5"}, raw...)...)
 	if code != 0 || !strings.Contains(errs, fmt.Sprintf("the input holds %d NaN and %d infinite voxels", nan, inf)) {
 		t.Errorf("smooth: exit %d, stderr %q", code, errs)
+	}
+}
+
+// TestCountNonFinite checks the bit-pattern count against math.IsNaN and math.IsInf
+// (IEEE 754: an all-ones exponent is Inf with a zero fraction, NaN otherwise) on both
+// float types, with signed values and payload NaNs.
+func TestCountNonFinite(t *testing.T) {
+	vals := []float64{0, -0.0, 1, -2.5, math.NaN(), -math.NaN(), math.Inf(1), math.Inf(-1),
+		math.Float64frombits(0x7ff0000000000001), math.MaxFloat64, math.SmallestNonzeroFloat64}
+	for _, typ := range []volume.SampleType{volume.Float32, volume.Float64, volume.Uint16} {
+		s := volume.NewSlice(len(vals), 1, typ)
+		var wantNaN, wantInf int64
+		for i, v := range vals {
+			if typ == volume.Float32 {
+				binary.LittleEndian.PutUint32(s.Data[4*i:], math.Float32bits(float32(v)))
+				v = float64(float32(v))
+			} else if typ == volume.Float64 {
+				binary.LittleEndian.PutUint64(s.Data[8*i:], math.Float64bits(v))
+			} else {
+				continue
+			}
+			if math.IsNaN(v) {
+				wantNaN++
+			} else if math.IsInf(v, 0) {
+				wantInf++
+			}
+		}
+		if nan, inf := countNonFinite(s); nan != wantNaN || inf != wantInf {
+			t.Errorf("%v: %d NaN, %d Inf; want %d, %d", typ, nan, inf, wantNaN, wantInf)
+		}
 	}
 }
