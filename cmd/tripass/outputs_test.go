@@ -2,11 +2,13 @@ package main
 
 import (
 	"encoding/binary"
+	"errors"
 	"fmt"
 	"math"
 	"os"
 	"path/filepath"
 	"strings"
+	"syscall"
 	"testing"
 
 	"github.com/tripass/tripass/internal/atomicfile"
@@ -312,5 +314,29 @@ func TestCountNonFinite(t *testing.T) {
 		if nan, inf := countNonFinite(s); nan != wantNaN || inf != wantInf {
 			t.Errorf("%v: %d NaN, %d Inf; want %d, %d", typ, nan, inf, wantNaN, wantInf)
 		}
+	}
+}
+
+// TestWriteFailureMessages: the failures of the file system a run can meet while
+// writing become one line naming the output and the cause, with ExitIO (the file-size
+// limit is checked for real by TestFileSizeLimit; a full disk cannot be made in a test
+// without privileges, so its error value is made here).
+func TestWriteFailureMessages(t *testing.T) {
+	for _, tc := range []struct {
+		err  error
+		want string
+	}{
+		{&os.PathError{Op: "write", Path: ".tripass-part-o.raw.resumable", Err: syscall.ENOSPC}, "the disk is full"},
+		{fmt.Errorf("raw: o.raw: writing slice 3: %w", &os.PathError{Op: "write", Path: "p", Err: syscall.EFBIG}), "the file-size limit was reached"},
+		{&os.PathError{Op: "open", Path: "p", Err: syscall.EACCES}, "permission denied"},
+	} {
+		err := writeFailure("o.raw", 3, tc.err)
+		if err == nil || exitCode(err) != ExitIO || !strings.Contains(err.Error(), "o.raw: writing output slice 3 failed: "+tc.want) ||
+			strings.Contains(err.Error(), "\n") {
+			t.Errorf("%v: got %v (exit %d)", tc.err, err, exitCode(err))
+		}
+	}
+	if writeFailure("o.raw", 0, errors.New("slice of 3×3 float32, header says 4×4")) != nil {
+		t.Error("an error that is not the file system's was taken for one")
 	}
 }
