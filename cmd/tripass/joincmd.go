@@ -31,8 +31,9 @@ its record says, that all come from one job (same input, command, parameters and
 number of tasks), and that together they cover every output slice exactly once. It
 then streams the parts in order into OUT, written exactly as a whole run would have
 written it (same format, compression, byte order), so the result is byte for byte
-the whole run's. OUT appears only when complete. Tasks with no slices (more tasks than
-slices) leave no part and none is expected.
+the whole run's; a TIFF OUT takes the parts' compressed strips as they are. OUT
+appears only when complete. Tasks with no slices (more tasks than slices) leave no
+part and none is expected.
 
 For a folder OUT, where the tasks wrote their slice files in place, 'tripass join OUT/'
 checks that the folder holds every slice of the job and no other, then removes the
@@ -265,12 +266,41 @@ func checkPart(p *part) error {
 	return nil
 }
 
-// copyParts streams the parts' slices, in order, into dst.
+// pageCopier is a TIFF writer that can take a part's page as it is
+// (tiffstack.Writer.CopyPage): strips laid out as it would write them are copied
+// without being decoded and compressed again.
+type pageCopier interface {
+	CopyPage(r *tiffstack.Reader, z int) (ok bool, err error)
+}
+
+// copyParts streams the parts' slices, in order, into dst, copying pages whose layout
+// is already OUT's.
 func copyParts(dst volume.SliceWriter, parts []*part, h volume.Header, progress func(int)) error {
+	var pc pageCopier
+	if o, ok := dst.(*output); ok {
+		pc, _ = o.Sink.(pageCopier)
+	}
 	s := volume.NewSlice(h.NX, h.NY, h.Type)
 	done := 0
 	for _, p := range parts {
 		for z := p.rec.Z0; z < p.rec.Z1; z++ {
+			if pc != nil {
+				ok, err := pc.CopyPage(p.r, z-p.rec.Z0)
+				if err != nil {
+					if strings.Contains(err.Error(), p.path) { // reading the part
+						return inputError(fmt.Errorf("part %s: slice %d: %w", p.path, z, err))
+					}
+					return ioError(err) // writing OUT
+				}
+				if ok {
+					done++
+					progress(done)
+					continue
+				}
+				if err := p.r.SeekSlice(z - p.rec.Z0); err != nil {
+					return inputError(err)
+				}
+			}
 			if err := p.r.ReadSlice(s); err != nil {
 				if err == io.EOF {
 					err = io.ErrUnexpectedEOF
