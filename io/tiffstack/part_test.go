@@ -8,6 +8,7 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+	"unicode"
 
 	"github.com/tripass/tripass/volume"
 )
@@ -279,4 +280,38 @@ func TestCopyPageAssemblesParts(t *testing.T) {
 			}
 		})
 	}
+}
+
+// FuzzNote: any JSON value survives encodeNote and noteOf unchanged in meaning, stays
+// one field with no white space, and noteOf never returns anything but valid JSON.
+func FuzzNote(f *testing.F) {
+	for _, s := range []string{`{"a":1}`, `"x y"`, `[1, 2, "\t"]`, `{"k": "a\u00a0b\u2028c"}`, `null`, `tripass note={`} {
+		f.Add(s)
+	}
+	f.Fuzz(func(t *testing.T, s string) {
+		if n := noteOf("tripass spacing=1,1,1 " + s); n != nil && !json.Valid(n) {
+			t.Fatalf("noteOf returned invalid JSON %q", n)
+		}
+		if !json.Valid([]byte(s)) {
+			return
+		}
+		field, err := encodeNote([]byte(s))
+		if err != nil {
+			t.Fatal(err)
+		}
+		if strings.ContainsFunc(field, unicode.IsSpace) {
+			t.Fatalf("encoded note %q has white space", field)
+		}
+		got := noteOf("tripass spacing=1,1,1 unit=um " + field)
+		var a, b any
+		if err := json.Unmarshal([]byte(s), &a); err != nil {
+			t.Fatal(err)
+		}
+		if err := json.Unmarshal(got, &b); err != nil {
+			t.Fatalf("note %q from %q: %v", got, s, err)
+		}
+		if !bytes.Equal(mustMarshal(a), mustMarshal(b)) {
+			t.Fatalf("note %s, want %s", mustMarshal(b), mustMarshal(a))
+		}
+	})
 }
