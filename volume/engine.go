@@ -385,7 +385,17 @@ func (e *engine) schedule() {
 	}
 	cached := func(j int) bool { return j < e.nHead || j >= nz-e.nTail }
 	ring, hi := 1, -1
-	for z0 := 0; z0 < nz; z0 += e.group {
+	// Groups away from both ends all need the same span, shifted: visit the first and
+	// last few groups and one group in the middle, so that a header claiming a very deep
+	// stack costs no time here (the groups skipped would only repeat the middle one;
+	// their highest index grows with z, which the group before the last few carries).
+	ngroups := (nz + e.group - 1) / e.group
+	k := (e.zBefore+e.zAfter+e.nHead+e.nTail)/e.group + 3
+	for g := 0; g < ngroups; g++ {
+		if g > k && g < ngroups-k-1 {
+			g = ngroups - k - 1
+		}
+		z0 := g * e.group
 		lo, top := math.MaxInt, -1
 		for r := z0 - e.zBefore; r <= min(z0+e.group, nz)-1+e.zAfter; r++ {
 			j, ok := e.edge.Index(r, nz)

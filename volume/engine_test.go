@@ -514,3 +514,49 @@ func TestFilterMixedPlans(t *testing.T) {
 		}
 	}
 }
+
+// TestScheduleShortcut: schedule visits only the groups near the ends of the stack; the
+// ring depth must equal the one found by visiting every group.
+func TestScheduleShortcut(t *testing.T) {
+	full := func(e *engine) int {
+		nz := e.nz
+		cached := func(j int) bool { return j < e.nHead || j >= nz-e.nTail }
+		ring, hi := 1, -1
+		for z0 := 0; z0 < nz; z0 += e.group {
+			lo, top := math.MaxInt, -1
+			for r := z0 - e.zBefore; r <= min(z0+e.group, nz)-1+e.zAfter; r++ {
+				if j, ok := e.edge.Index(r, nz); ok && !cached(j) {
+					lo, top = min(lo, j), max(top, j)
+				}
+			}
+			hi = max(hi, top)
+			if lo <= top {
+				ring = max(ring, hi-lo+1)
+			}
+		}
+		return ring
+	}
+	for _, edge := range allEdges {
+		for nz := 1; nz < 90; nz += 7 {
+			for zb := 0; zb < 9; zb += 2 {
+				for za := 0; za < 9; za += 3 {
+					e := &engine{nz: nz, edge: edge, zBefore: zb, zAfter: za,
+						plans: []*compiled{{}}}
+					e.schedule()
+					if e.holdAll {
+						continue
+					}
+					if want := full(e); e.ring != want {
+						t.Errorf("%v nz=%d z extents %d,%d: ring %d, want %d", edge, nz, zb, za, e.ring, want)
+					}
+				}
+			}
+		}
+	}
+	// A header claiming 2^40 slices of one voxel is scheduled at once.
+	e := &engine{nz: 1 << 40, edge: EdgeReflect, zBefore: 30, zAfter: 30, plans: []*compiled{{}}}
+	e.schedule()
+	if e.ring < 61 || e.ring > 70 {
+		t.Errorf("ring %d for 61 taps", e.ring)
+	}
+}
