@@ -45,8 +45,8 @@ type FilterOptions struct {
 	Edge Edge
 	// Fill is the value beyond the borders for EdgeConstant.
 	Fill float64
-	// Threads is the number of compute goroutines; 0 means runtime.GOMAXPROCS(0). The
-	// output does not depend on it, bit for bit.
+	// Threads is the number of compute goroutines; 0 means runtime.GOMAXPROCS(0), which
+	// is also the most used. The output does not depend on it, bit for bit.
 	Threads int
 	// Scale, if not nil, holds one factor per plan that multiplies the plan's output
 	// before the outputs are combined (for example 1/32 for calibrated Sobel plans).
@@ -188,9 +188,10 @@ func Filter(dst SliceWriter, src Source, outType SampleType, plans []*tensor.Pla
 		}
 		e.plans = append(e.plans, c)
 	}
-	e.threads = opt.Threads
-	if e.threads == 0 {
-		e.threads = runtime.GOMAXPROCS(0)
+	// More workers than processors would only take turns (and spin between phases).
+	e.threads = runtime.GOMAXPROCS(0)
+	if opt.Threads > 0 {
+		e.threads = min(opt.Threads, e.threads)
 	}
 	e.layout()
 	e.schedule()
@@ -246,9 +247,10 @@ const (
 	phaseZ               // z pass and combination for the current output slice
 )
 
-type task struct {
-	ph    phase
-	epoch int64
+// helper is the state of a compute goroutine other than the engine's own.
+type helper struct {
+	sleeping atomic.Bool
+	wake     chan struct{} // a token wakes a sleeping helper
 }
 
 type engine struct {
@@ -303,9 +305,12 @@ type engine struct {
 	curOuts   [][]float32 // the group's output slices
 	outs      []*outBuf
 
-	work      chan task
+	helpers   []helper       // index 1 … threads−1; worker 0 is the compute goroutine
+	hwg       sync.WaitGroup // running helpers
+	stop      atomic.Bool    // helpers must return
 	wg        sync.WaitGroup // blocks of the current phase not yet done
 	epoch     int64          // number of the current phase
+	curPhase  atomic.Int32   // kind of the current phase
 	nextBlock atomic.Int64   // epoch<<32 | next block of rows to take
 
 	inFree  chan *inBuf
@@ -551,18 +556,7 @@ func (e *engine) alloc() {
 func (e *engine) run(dst SliceWriter, src Source) (err error) {
 	e.quit = make(chan struct{})
 	e.wdone = make(chan struct{})
-	if e.threads > 1 {
-		// Helpers 1 … threads−1; the compute goroutine itself is worker 0. A helper
-		// that comes late to a phase finds its blocks taken and waits for the next.
-		e.work = make(chan task, 4*e.threads)
-		for w := 1; w < e.threads; w++ {
-			go func() {
-				for t := range e.work {
-					e.take1(t.ph, w, t.epoch)
-				}
-			}()
-		}
-	}
+	e.startHelpers()
 	e.rwg.Add(1)
 	go e.reader(src)
 	go e.writer(dst)
@@ -571,9 +565,7 @@ func (e *engine) run(dst SliceWriter, src Source) (err error) {
 		close(e.outCh)
 		<-e.wdone
 		e.rwg.Wait()
-		if e.work != nil {
-			close(e.work)
-		}
+		e.stopHelpers()
 		if err == nil && e.werr != nil {
 			err = e.werr
 		}

@@ -1,11 +1,17 @@
 package volume
 
+import (
+	"runtime"
+	"time"
+)
+
 // The compute stage of the engine: the passes on blocks of rows, run by the workers.
 
 // runPhase runs phase ph on every block of rows and returns when all are done. The
 // compute goroutine takes blocks itself while the helpers take theirs, so a helper that
 // is slow to be scheduled (the reader or the writer may hold the other core) delays
-// nothing.
+// nothing; helpers spin for a moment between phases, which are short (a fraction of a
+// millisecond), and sleep only when no phase comes.
 func (e *engine) runPhase(ph phase) {
 	if e.threads == 1 {
 		for b := range e.nblocks {
@@ -14,13 +20,94 @@ func (e *engine) runPhase(ph phase) {
 		return
 	}
 	e.epoch++
-	e.nextBlock.Store(e.epoch << 32)
 	e.wg.Add(e.nblocks)
-	for range e.threads - 1 {
-		e.work <- task{ph, e.epoch}
+	e.curPhase.Store(int32(ph))
+	e.nextBlock.Store(e.epoch << 32)
+	for w := 1; w < e.threads; w++ {
+		if h := &e.helpers[w]; h.sleeping.CompareAndSwap(true, false) {
+			select {
+			case h.wake <- struct{}{}:
+			default:
+			}
+		}
 	}
 	e.take1(ph, 0, e.epoch)
 	e.wg.Wait()
+}
+
+// helperSpin is how long a helper waits for the next phase before it sleeps.
+const helperSpin = 100 * time.Microsecond
+
+func (e *engine) startHelpers() {
+	if e.threads == 1 {
+		return
+	}
+	e.helpers = make([]helper, e.threads)
+	for w := 1; w < e.threads; w++ {
+		e.helpers[w].wake = make(chan struct{}, 1)
+		e.hwg.Add(1)
+		go e.helperLoop(w)
+	}
+}
+
+func (e *engine) stopHelpers() {
+	if e.threads == 1 {
+		return
+	}
+	e.stop.Store(true)
+	for w := 1; w < e.threads; w++ {
+		select {
+		case e.helpers[w].wake <- struct{}{}:
+		default:
+		}
+	}
+	e.hwg.Wait()
+}
+
+// helperLoop is helper w: it takes blocks of every phase it sees until told to stop.
+func (e *engine) helperLoop(w int) {
+	defer e.hwg.Done()
+	h := &e.helpers[w]
+	seen := int64(0)
+	for {
+		epoch, ok := e.waitPhase(h, seen)
+		if !ok {
+			return
+		}
+		seen = epoch
+		e.take1(phase(e.curPhase.Load()), w, epoch)
+	}
+}
+
+// waitPhase waits for a phase newer than seen: spinning for helperSpin (yielding the
+// processor to the reader and writer as it goes), then asleep until runPhase wakes it.
+// A helper announces that it sleeps before it looks at the phase a last time, and
+// runPhase publishes the phase before it looks for sleepers, so no wake-up is lost.
+func (e *engine) waitPhase(h *helper, seen int64) (epoch int64, ok bool) {
+	deadline := time.Now().Add(helperSpin)
+	for i := 0; ; i++ {
+		if e.stop.Load() {
+			return 0, false
+		}
+		if ep := e.nextBlock.Load() >> 32; ep != seen {
+			return ep, true
+		}
+		if i%32 == 31 && time.Now().After(deadline) {
+			break
+		}
+		runtime.Gosched()
+	}
+	for {
+		h.sleeping.Store(true)
+		if e.stop.Load() {
+			return 0, false
+		}
+		if ep := e.nextBlock.Load() >> 32; ep != seen {
+			h.sleeping.Store(false)
+			return ep, true
+		}
+		<-h.wake
+	}
 }
 
 // take1 runs phase ph on blocks of rows taken in turn, with worker w's scratch, until

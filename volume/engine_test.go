@@ -224,6 +224,8 @@ func f32bits(v []float32) []uint32 {
 // TestFilterThreadsBitIdentical: the output must not depend on the number of threads
 // (sharded runs will rely on it), for a slice large enough to be cut into many blocks.
 func TestFilterThreadsBitIdentical(t *testing.T) {
+	// Filter uses at most GOMAXPROCS workers; allow 7 whatever the machine.
+	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(8))
 	rng := rand.New(rand.NewPCG(3, 5))
 	shape := [3]int{150, 97, 12}
 	data := randomVolume(rng, shape[0]*shape[1]*shape[2])
