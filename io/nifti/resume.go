@@ -261,11 +261,15 @@ func (w *Writer) Sync() (slices int, size int64, err error) {
 	return int((durable - minVoxOffset) / sb), st.Size(), nil
 }
 
-// Suspend stops writing but keeps the partial .nii file for Resume: it syncs what was
-// written, closes the file and returns what Sync returns.
+// Suspend stops writing but keeps the partial file for Resume: it syncs what was
+// written, stops the compressing goroutines of a .nii.gz, closes the file and returns
+// what Sync returns.
 func (w *Writer) Suspend() (slices int, size int64, err error) {
 	slices, size, err = w.Sync()
 	w.closed = true
+	if w.gz != nil {
+		w.gz.Abort() // the chunk being filled is not kept
+	}
 	if derr := w.f.Detach(); err == nil && derr != nil {
 		err = fmt.Errorf("nifti: %s: syncing: %w", w.path, derr)
 	}
