@@ -244,7 +244,7 @@ const (
 	phaseX  phase = iota // XYZ: first pass along x of the current branch into e.g
 	phaseY               // XYZ: second passes along y of the current branch's leaves
 	phaseYX              // YXZ: first pass along y and second passes along x, per block
-	phaseZ               // z pass and combination for the current output slice
+	phaseZ               // z passes and combination for the current group of outputs
 )
 
 // helper is the state of a compute goroutine other than the engine's own.
@@ -296,7 +296,8 @@ type engine struct {
 	threads int
 	bytes   int64
 
-	// state of the current phase, set by the compute goroutine before it starts workers
+	// state of the current phase, set by the compute goroutine before it publishes the
+	// phase to the helpers (nextBlock)
 	cur       *inBuf
 	curSlot   int
 	curPlan   *compiled
