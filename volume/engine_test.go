@@ -562,3 +562,31 @@ func TestScheduleShortcut(t *testing.T) {
 		t.Errorf("ring %d for 61 taps", e.ring)
 	}
 }
+
+// TestFilterZeroKernel: a kernel of zeros gives zeros (whatever the fill), in every
+// form, alone or beside another plan.
+func TestFilterZeroKernel(t *testing.T) {
+	shape := [3]int{5, 4, 6}
+	data := randomVolume(rand.New(rand.NewPCG(1, 1)), 120)
+	z3 := []float64{0, 0, 0}
+	zero := []*tensor.Plan{
+		tensor.SeparablePlan(1, z3, []float64{1, 2, 1}, z3),
+		densePlan(tensor.New(3, 2, 4)),
+	}
+	for _, p := range zero {
+		for _, edge := range allEdges {
+			got := runFilter(t, shape, data, []*tensor.Plan{p}, CombineNone, FilterOptions{Edge: edge, Fill: 5})
+			for i, v := range got {
+				if v != 0 {
+					t.Fatalf("%v %v: voxel %d = %g, want 0", p.Form, edge, i, v)
+				}
+			}
+		}
+	}
+	// Beside an identity, the sum is the input.
+	id := tensor.SeparablePlan(1, []float64{1}, []float64{1}, []float64{1})
+	got := runFilter(t, shape, data, []*tensor.Plan{zero[0], id, zero[1]}, CombineSum, FilterOptions{})
+	if !slices.Equal(got, data) {
+		t.Error("zero plans plus identity changed the data")
+	}
+}
