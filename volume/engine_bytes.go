@@ -68,10 +68,10 @@ func encodeRow(dst []byte, t SampleType, src []float32) (clamped int) {
 			switch {
 			case f != f:
 				clamped++
-			case f < math.MinInt16:
+			case f <= math.MinInt16-0.5: // rounds below the range
 				x = math.MinInt16
 				clamped++
-			case f > math.MaxInt16:
+			case f >= math.MaxInt16+0.5: // rounds above the range
 				x = math.MaxInt16
 				clamped++
 			case f < 0:
@@ -87,16 +87,19 @@ func encodeRow(dst []byte, t SampleType, src []float32) (clamped int) {
 	return s.FromFloat32(src)
 }
 
-// roundUnsigned rounds v half away from zero into [0, hi], reporting 1 when v was
-// beyond the range or NaN. float64(v) + 0.5 is exact for every float32 in range.
+// roundUnsigned rounds v half away from zero into [0, hi], reporting 1 when the rounded
+// value lay beyond the range or v was NaN. float64(v) + 0.5 is exact for every float32
+// in range.
 func roundUnsigned(v float32, hi float64) (uint32, int) {
 	f := float64(v)
 	switch {
 	case f != f:
 		return 0, 1
-	case f < 0:
+	case f <= -0.5: // rounds to −1 or below
 		return 0, 1
-	case f > hi:
+	case f < 0:
+		return 0, 0
+	case f >= hi+0.5: // rounds above hi
 		return uint32(hi), 1
 	}
 	return uint32(f + 0.5), 0

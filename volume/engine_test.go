@@ -292,7 +292,7 @@ func TestFilterIdentityAndTypes(t *testing.T) {
 	clamped := 0
 	for i, v := range data {
 		want := math.Max(0, math.Min(255, math.Round(float64(v))))
-		if v < 0 || v > 255 { // FromFloat32 counts values beyond the range before rounding
+		if r := math.Round(float64(v)); r < 0 || r > 255 { // counted when the rounded value is beyond the range
 			clamped++
 		}
 		if float64(sink.Data[i]) != want {

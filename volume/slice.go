@@ -159,16 +159,20 @@ func (s *Slice) Set(i int, v float64) bool {
 	return c != 0
 }
 
+// roundClamp rounds v half away from zero and clamps it to [lo, hi]; it reports 1 when
+// the rounded value lay outside the range (so −0.4 and 255.4 into uint8 are not
+// clamped) or v was NaN.
 func roundClamp(v, lo, hi float64) (float64, int) {
+	r := math.Round(v)
 	switch {
 	case v != v: // NaN has no integer value
 		return 0, 1
-	case v < lo:
+	case r < lo:
 		return lo, 1
-	case v > hi:
+	case r > hi:
 		return hi, 1
 	}
-	return math.Round(v), 0
+	return r, 0
 }
 
 func (s *Slice) putInt(i int, x float64) {

@@ -6,16 +6,18 @@ import (
 )
 
 func TestFromFloat32RoundsAndClamps(t *testing.T) {
-	src := []float32{-1, 0.49, 0.5, 1.5, 2.5, 254.6, 300, float32(math.NaN())}
+	src := []float32{-1, 0.49, 0.5, 1.5, 2.5, 254.6, 300, float32(math.NaN()), -0.4, 255.4, -0.5}
 	tests := []struct {
 		t       SampleType
 		want    []float64
 		clamped int
 	}{
 		// Round half away from zero, clamp to [0,255], NaN → 0 (common practice).
-		{Uint8, []float64{0, 0, 1, 2, 3, 255, 255, 0}, 3},
-		{Int16, []float64{-1, 0, 1, 2, 3, 255, 300, 0}, 1},
-		{Uint16, []float64{0, 0, 1, 2, 3, 255, 300, 0}, 2},
+		// A value that rounds into the range is not clamped (−0.4 → 0, 255.4 → 255);
+		// −0.5 rounds to −1 and is.
+		{Uint8, []float64{0, 0, 1, 2, 3, 255, 255, 0, 0, 255, 0}, 4},
+		{Int16, []float64{-1, 0, 1, 2, 3, 255, 300, 0, 0, 255, -1}, 1},
+		{Uint16, []float64{0, 0, 1, 2, 3, 255, 300, 0, 0, 255, 0}, 3},
 	}
 	for _, tt := range tests {
 		s := NewSlice(len(src), 1, tt.t)
