@@ -211,8 +211,8 @@ func Filter(dst SliceWriter, src Source, outType SampleType, plans []*tensor.Pla
 		e.seeker = seeker
 	}
 	if need := e.bufferBytes(); opt.MaxBufferBytes > 0 && need > opt.MaxBufferBytes {
-		return stats, fmt.Errorf("filter: %w: the kernels need %d MiB of buffers for %d×%d slices, more than the limit of %d MiB",
-			ErrMemory, need>>20, h.NX, h.NY, opt.MaxBufferBytes>>20)
+		return stats, fmt.Errorf("filter: %w: the kernels need %.1f MiB of buffers for %d×%d slices, more than the limit of %.1f MiB",
+			ErrMemory, float64(need)/(1<<20), h.NX, h.NY, float64(opt.MaxBufferBytes)/(1<<20))
 	}
 	e.alloc()
 	err := e.run(dst, src)

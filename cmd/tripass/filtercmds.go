@@ -1,6 +1,7 @@
 package main
 
 import (
+	"errors"
 	"fmt"
 	"math"
 	"strings"
@@ -45,7 +46,7 @@ func outTypeFlag(def string) cli.Flag {
 // filterFlags lists a filtering command's flags: its own, then the shared ones. Commands
 // that write float32 unless told otherwise pass "float32" as outDefault.
 func filterFlags(outDefault string, own ...cli.Flag) []cli.Flag {
-	fl := append(own, flagEdge, flagFill, flagThreads, outTypeFlag(outDefault), flagQuiet, flagLog)
+	fl := append(own, flagEdge, flagFill, flagThreads, flagMaxMemory, outTypeFlag(outDefault), flagQuiet, flagLog)
 	fl = append(fl, inputFlags()...)
 	fl = append(fl, outputFlags()...)
 	return append(fl, shardFlags()...)
@@ -72,6 +73,10 @@ func runFilter(c *cli.Context, name string, build func(c *cli.Context, h volume.
 	if c.Int(flagThreads.Name) < 0 {
 		return usageErrorf("--threads %d: want 0 (all cores) or more", c.Int(flagThreads.Name))
 	}
+	maxMem, err := maxBufferBytes(c)
+	if err != nil {
+		return err
+	}
 	in, err := openInput(c, inPath)
 	if err != nil {
 		return err
@@ -93,15 +98,19 @@ func runFilter(c *cli.Context, name string, build func(c *cli.Context, h volume.
 		name: name, inPath: inPath, outPath: outPath, in: in, outH: outH,
 		plans: fj.plans, combine: fj.combine, what: fj.what,
 		opt: volume.FilterOptions{
-			Edge:    edge,
-			Fill:    c.Float64(flagFill.Name),
-			Threads: c.Int(flagThreads.Name),
+			Edge:           edge,
+			Fill:           c.Float64(flagFill.Name),
+			Threads:        c.Int(flagThreads.Name),
+			MaxBufferBytes: maxMem,
 		},
 	}
 	if skip, err := job.setShard(c); skip || err != nil {
 		return err
 	}
 	_, err = job.run(c)
+	if errors.Is(err, volume.ErrMemory) {
+		return &exitError{ExitFailure, fmt.Errorf("%w; give more with --max-memory SIZE, or use a narrower kernel", err)}
+	}
 	return err
 }
 
