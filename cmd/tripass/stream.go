@@ -130,8 +130,11 @@ func (j *streamJob) run(c *cli.Context) (volume.FilterStats, error) {
 		return st, err
 	}
 	rs.discard()
-	o := j.outH
-	note(c, "wrote %s: %d×%d×%d %s", j.outPath, o.NX, o.NY, j.z1-j.z0, o.Type)
+	o, written := j.outH, j.outPath
+	if out, ok := sink.(*output); ok {
+		written = out.path // a shard's part file, or OUT itself
+	}
+	note(c, "wrote %s: %d×%d×%d %s", written, o.NX, o.NY, j.z1-j.z0, o.Type)
 	if st.NaN > 0 || st.Inf > 0 {
 		if j.plans == nil {
 			note(c, "the input holds %d NaN and %d infinite voxels", st.NaN, st.Inf)
