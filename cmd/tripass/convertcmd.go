@@ -1,6 +1,7 @@
 package main
 
 import (
+	"encoding/json"
 	"fmt"
 
 	"github.com/urfave/cli/v2"
@@ -56,8 +57,20 @@ func convertAction(c *cli.Context) error {
 }
 
 // note prints an informational line on stderr unless --quiet was given.
+// With --log json the line is a JSON object {"event":"note","command":…,"text":…}, so
+// that a batch log stays machine-readable.
 func note(c *cli.Context, format string, a ...any) {
-	if !c.Bool(flagQuiet.Name) {
-		fmt.Fprintf(c.App.ErrWriter, format+"\n", a...)
+	if c.Bool(flagQuiet.Name) {
+		return
 	}
+	text := fmt.Sprintf(format, a...)
+	if f, err := parseLogFormat(c.String(flagLog.Name)); err == nil && f == logJSON {
+		json.NewEncoder(c.App.ErrWriter).Encode(struct {
+			Event   string `json:"event"`
+			Command string `json:"command"`
+			Text    string `json:"text"`
+		}{"note", commandName(c), text})
+		return
+	}
+	fmt.Fprintln(c.App.ErrWriter, text)
 }
