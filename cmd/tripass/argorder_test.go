@@ -11,6 +11,10 @@ import (
 func TestFlagsOnEitherSideOfArguments(t *testing.T) {
 	dir := t.TempDir()
 	in := rockStack(t, dir)
+	kernel := filepath.Join(dir, "k.npy")
+	if code, _, errs := runCLI(t, "kernel", "make", "gaussian", "--sigma", "1,1,2", "-o", kernel, "--quiet"); code != 0 {
+		t.Fatalf("kernel make: %s", errs)
+	}
 	tests := []struct {
 		cmd   string
 		flags []string
@@ -22,13 +26,19 @@ func TestFlagsOnEitherSideOfArguments(t *testing.T) {
 		{"gradient", []string{"--component", "z", "--threads", "1", "--quiet"}, true},
 		{"laplace", []string{"--sigma", "1", "--quiet"}, true},
 		{"dog", []string{"--sigma", "1", "--sigma2", "2", "--quiet"}, true},
+		{"convolve", []string{"--kernel", kernel, "--tolerance", "1e-3", "--quiet"}, true},
+		{"preview", []string{"--sections", "xy,xz", "--width", "64", "--quiet"}, true},
 	}
 	for _, tt := range tests {
 		t.Run(tt.cmd, func(t *testing.T) {
 			var results [2][]byte
 			for i := 0; i < 2; i++ {
 				pos := []string{in}
-				out := filepath.Join(dir, tt.cmd+string(rune('a'+i))+".tif")
+				ext := ".tif"
+				if tt.cmd == "preview" {
+					ext = ".png"
+				}
+				out := filepath.Join(dir, tt.cmd+string(rune('a'+i))+ext)
 				if tt.out {
 					pos = append(pos, out)
 				}
@@ -55,5 +65,30 @@ func TestFlagsOnEitherSideOfArguments(t *testing.T) {
 				t.Errorf("flags before and after the arguments gave different results")
 			}
 		})
+	}
+}
+
+func TestJoinFlagsOnEitherSide(t *testing.T) {
+	dir := t.TempDir()
+	in := rockStack(t, dir)
+	out := filepath.Join(dir, "s.tif")
+	var parts []string
+	for _, shard := range []string{"1/2", "2/2"} {
+		if code, _, errs := runCLI(t, "smooth", in, out, "--sigma", "1", "--shard", shard, "--quiet"); code != 0 {
+			t.Fatalf("shard %s: %s", shard, errs)
+		}
+	}
+	parts = []string{out + ".part-0001-of-0002.tif", out + ".part-0002-of-0002.tif"}
+	a, b := filepath.Join(dir, "a.tif"), filepath.Join(dir, "b.tif")
+	if code, _, errs := runCLI(t, append(append([]string{"join", "--quiet"}, parts...), a)...); code != 0 {
+		t.Fatalf("join with flags first: %s", errs)
+	}
+	if code, _, errs := runCLI(t, append(append([]string{"join"}, parts...), b, "--quiet")...); code != 0 {
+		t.Fatalf("join with flags last: %s", errs)
+	}
+	ba, _ := os.ReadFile(a)
+	bb, _ := os.ReadFile(b)
+	if !bytes.Equal(ba, bb) {
+		t.Error("flags before and after the arguments gave different joins")
 	}
 }
