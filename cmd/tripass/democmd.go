@@ -23,7 +23,7 @@ voxels: a cylinder of matrix with dense grains, pores and noise) into DIR
 command line before its output. Every file it writes lies in DIR; running it again
 replaces them.
 
-Example:
+Examples:
    tripass demo
    tripass demo /tmp/tripass-demo --size 256,256,160`,
 	Flags: []cli.Flag{
