@@ -195,13 +195,16 @@ func RanksForTolerance(values [3][]float64, norm, tol float64) [3]int {
 
 // NumericalRank returns the number of singular values in s (descending) above
 // NumericalZero·s[0]; 0 if s is empty or all zero.
-func NumericalRank(s []float64) int {
+func NumericalRank(s []float64) int { return numericalRankAt(s, NumericalZero) }
+
+// numericalRankAt counts the values of s (descending) above rel·s[0].
+func numericalRankAt(s []float64, rel float64) int {
 	if len(s) == 0 || s[0] == 0 {
 		return 0
 	}
 	r := 0
 	for _, v := range s {
-		if v > NumericalZero*s[0] {
+		if v > rel*s[0] {
 			r++
 		}
 	}

@@ -43,7 +43,18 @@ type AnalyzeOptions struct {
 	// Force, if not nil, restricts the choice to one form: the cheapest plan of that
 	// form within the tolerance, or, if none is, its most accurate non-degenerate plan.
 	Force *Form
+	// ExactZero is the relative size below which an n-mode singular value counts as
+	// zero in the exact statements (ExactRank, Separable). Zero means NumericalZero,
+	// right for kernels computed in float64. A kernel stored in float32 carries rounding
+	// errors E with ‖E‖_F ≤ u‖K‖_F, u = 2⁻²⁴, and by Weyl's inequality they move every
+	// singular value by at most ‖E‖_F, so a small multiple of u (Float32ExactZero) is
+	// the threshold that still calls such a kernel exactly what it was before rounding.
+	ExactZero float64
 }
+
+// Float32ExactZero is ExactZero for kernels stored in float32: four times the unit
+// roundoff 2⁻²⁴ (the factor leaves room for the float64 arithmetic of the analysis).
+const Float32ExactZero = 4.0 / (1 << 24)
 
 // An Option is one candidate way of applying a kernel, with its true error and cost.
 type Option struct {
@@ -87,9 +98,9 @@ type Analysis struct {
 	// tol²‖K‖²/3, which keeps the truncated HOSVD within tol (see RanksForTolerance).
 	MultilinearRank [3]int
 	// ExactRank is the numerical multilinear rank: n-mode singular values above
-	// NumericalZero times the largest count (see NumericalRank). A kernel stored in
-	// float32 carries rounding noise far above that threshold, so its ExactRank is
-	// usually full; MultilinearRank then tells its structure within the tolerance.
+	// AnalyzeOptions.ExactZero (by default NumericalZero) times the largest count (see
+	// NumericalRank). A kernel stored in float32 carries rounding noise far above
+	// NumericalZero: analyse it with ExactZero = Float32ExactZero.
 	ExactRank [3]int
 	// Separable says the kernel is exactly rank one, one outer product x∘y∘z: its
 	// numerical multilinear rank is (1, 1, 1).
@@ -172,8 +183,12 @@ func Analyze(k *Dense, opt AnalyzeOptions) (*Analysis, error) {
 	an.ModeSingularValues = h.Values
 	an.MultilinearRank = RanksForTolerance(h.Values, an.Norm, tol)
 	an.Separable = true
+	zero := opt.ExactZero
+	if zero <= 0 {
+		zero = NumericalZero
+	}
 	for n := range 3 {
-		an.ExactRank[n] = NumericalRank(h.Values[n])
+		an.ExactRank[n] = numericalRankAt(h.Values[n], zero)
 		an.Separable = an.Separable && an.ExactRank[n] == 1
 	}
 

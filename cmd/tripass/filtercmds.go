@@ -420,7 +420,7 @@ func buildConvolve(c *cli.Context, h volume.Header) (*filterJob, error) {
 	if err != nil {
 		return nil, err
 	}
-	opt := tensor.AnalyzeOptions{Tolerance: tol}
+	opt := analyzeOptions(k, tol)
 	if f := c.String("form"); f != "" {
 		form, err := tensor.ParseForm(f)
 		if err != nil {

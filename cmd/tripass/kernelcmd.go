@@ -623,7 +623,9 @@ func kernelInspectAction(c *cli.Context) error {
 	if err != nil {
 		return err
 	}
-	an, err := tensor.Analyze(k, tensor.AnalyzeOptions{Tolerance: tol, MaxCPTerms: maxTerms})
+	opt := analyzeOptions(k, tol)
+	opt.MaxCPTerms = maxTerms
+	an, err := tensor.Analyze(k, opt)
 	if err != nil {
 		return inputError(fmt.Errorf("kernel %s: %w", path, err))
 	}

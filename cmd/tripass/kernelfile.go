@@ -151,3 +151,17 @@ func writeKernel(path string, k *tensor.Dense, f32, overwrite bool) error {
 	}
 	return nil
 }
+
+// analyzeOptions returns the planner options for kernel k: a kernel whose taps are all
+// float32 values (as a float32 .npy file holds) is judged exact up to float32's
+// rounding, so that a separable kernel saved in float32 is still called separable.
+func analyzeOptions(k *tensor.Dense, tol float64) tensor.AnalyzeOptions {
+	opt := tensor.AnalyzeOptions{Tolerance: tol}
+	for _, v := range k.Data {
+		if float64(float32(v)) != v {
+			return opt
+		}
+	}
+	opt.ExactZero = tensor.Float32ExactZero
+	return opt
+}
