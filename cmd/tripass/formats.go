@@ -269,17 +269,11 @@ func createOutput(c *cli.Context, path string, h volume.Header, opt outputOption
 	var sink volume.Sink
 	switch k {
 	case kindTIFF, kindFolder:
-		wo := tiffstack.WriteOptions{BigTIFF: c.Bool(flagBigTIFF.Name), Overwrite: overwrite}
-		switch strings.ToLower(c.String(flagCompress.Name)) {
-		case "none", "":
-			wo.Compression = tiffstack.None
-		case "lzw":
-			wo.Compression, wo.Predictor = tiffstack.LZW, !h.Type.IsFloat()
-		case "deflate", "zip":
-			wo.Compression, wo.Predictor = tiffstack.Deflate, !h.Type.IsFloat()
-		default:
-			return nil, usageErrorf("--compress %q: want none, lzw or deflate", c.String(flagCompress.Name))
+		wo, werr := tiffOptions(c, h)
+		if werr != nil {
+			return nil, werr
 		}
+		wo.Overwrite = overwrite
 		// Outputs are resumable (resume.go in each format package): their partial
 		// files have fixed names that --resume finds again.
 		switch {
@@ -406,4 +400,21 @@ func streamError(inPath, outPath string, err error) error {
 		return err
 	}
 	return fmt.Errorf("%s → %s: %w", inPath, outPath, err)
+}
+
+// tiffOptions reads --compress and --bigtiff into TIFF writer settings; whole runs and
+// shard parts use the same ones, so a joined file equals a whole run byte for byte.
+func tiffOptions(c *cli.Context, h volume.Header) (tiffstack.WriteOptions, error) {
+	wo := tiffstack.WriteOptions{BigTIFF: c.Bool(flagBigTIFF.Name)}
+	switch strings.ToLower(c.String(flagCompress.Name)) {
+	case "none", "":
+		wo.Compression = tiffstack.None
+	case "lzw":
+		wo.Compression, wo.Predictor = tiffstack.LZW, !h.Type.IsFloat()
+	case "deflate", "zip":
+		wo.Compression, wo.Predictor = tiffstack.Deflate, !h.Type.IsFloat()
+	default:
+		return wo, usageErrorf("--compress %q: want none, lzw or deflate", c.String(flagCompress.Name))
+	}
+	return wo, nil
 }

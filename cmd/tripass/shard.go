@@ -417,22 +417,6 @@ func writeFolderRecord(path string, r shardRecord) error {
 	return f.Commit()
 }
 
-// tiffOptions are the TIFF writer settings createOutput uses for the same flags.
-func tiffOptions(c *cli.Context, h volume.Header) (tiffstack.WriteOptions, error) {
-	wo := tiffstack.WriteOptions{BigTIFF: c.Bool(flagBigTIFF.Name)}
-	switch strings.ToLower(c.String(flagCompress.Name)) {
-	case "none", "":
-		wo.Compression = tiffstack.None
-	case "lzw":
-		wo.Compression, wo.Predictor = tiffstack.LZW, !h.Type.IsFloat()
-	case "deflate", "zip":
-		wo.Compression, wo.Predictor = tiffstack.Deflate, !h.Type.IsFloat()
-	default:
-		return wo, usageErrorf("--compress %q: want none, lzw or deflate", c.String(flagCompress.Name))
-	}
-	return wo, nil
-}
-
 // runtimeFlags change how a task runs, not what it computes; the fingerprint leaves
 // them out.
 var runtimeFlags = map[string]bool{
